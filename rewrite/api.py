@@ -1,0 +1,202 @@
+"""The one entry point that the command line, editors and tests use.
+
+``rewrite_text`` turns one source text into a ``Result``: the rewritten text, the edits (each
+marked bit-for-bit or answer-changing), the findings (reported, not edited) and the problems
+(errors: the text is then returned unchanged). ``rewrite_paths`` does the same for files and
+directories, resolving USE between the Fortran files of one batch, and ``write_result`` puts
+a result on disk atomically.
+"""
+from __future__ import annotations
+
+import bisect
+import os
+import stat
+import tempfile
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+
+from . import planner
+from .config import DEFAULT, Options
+from .edits import Edit, Finding, Problem
+from .fortran import frontend
+from .fortran.render import render
+from .fortran.source import FIXED_FORM_SUFFIXES, FREE_FORM_SUFFIXES, code_length, physical_lines
+
+
+@dataclass(frozen=True)
+class Result:
+    path: str
+    original: str
+    text: str
+    edits: tuple[Edit, ...] = ()
+    findings: tuple[Finding, ...] = ()
+    problems: tuple[Problem, ...] = ()
+    notice: str = ""  # set when the file was skipped
+    data: bytes | None = field(default=None, repr=False)  # the bytes read, for the write check
+
+    @property
+    def changed(self) -> bool:
+        return not self.problems and self.text != self.original
+
+
+class _Lines:
+    def __init__(self, text: str):
+        self.starts = [line.start for line in physical_lines(text)] or [0]
+
+    def position(self, offset: int) -> tuple[int, int]:
+        index = bisect.bisect_right(self.starts, offset) - 1
+        return index + 1, offset - self.starts[index] + 1
+
+
+def _line_problems(text: str, options: Options) -> list[Problem]:
+    if options.line_length <= 0:
+        return []
+    problems = []
+    for line in physical_lines(text):
+        if line.text.startswith("#"):
+            continue
+        length = code_length(line.text)[0]
+        if length > options.line_length:
+            problems.append(Problem(line.number, f"line is {length} characters long, over the limit of "
+                                                 f"{options.line_length} (set line-length to allow longer lines)"))
+    return problems
+
+
+def rewrite_text(text: str, language: str = "fortran", options: Options | None = None,
+                 path: str = "<text>", known_modules: dict | None = None) -> Result:
+    options = options or DEFAULT
+    if language != "fortran":
+        raise ValueError(f"unknown language {language!r}")
+    problems = _line_problems(text, options)
+    if problems:
+        return Result(path, text, text, problems=tuple(problems))
+    analysed = frontend.analyse(text, known_modules)
+    if analysed.problems:
+        return Result(path, text, text, findings=tuple(analysed.findings), problems=tuple(analysed.problems))
+    edits, findings = planner.plan(analysed.sites, text, options)
+    edits = [e for e in edits if e.effect in options.effects]
+    new_text, refused = render(text, edits, options.line_length)
+    findings = list(analysed.findings) + findings
+    for edit in refused:
+        findings.append(Finding(edit.span, edit.rule, f"not edited: {edit.after} would not fit within "
+                                                      f"{options.line_length} columns"))
+    edits = [e for e in edits if e not in refused]
+    lines = _Lines(text)
+    placed_edits = tuple(sorted((replace(e, line=lines.position(e.span.start)[0],
+                                         column=lines.position(e.span.start)[1]) for e in edits),
+                                key=lambda e: (e.span.start, e.span.end)))
+    placed_findings = tuple(sorted((replace(f, line=lines.position(f.span.start)[0],
+                                            column=lines.position(f.span.start)[1]) for f in findings),
+                                   key=lambda f: (f.span.start, f.rule)))
+    return Result(path, text, new_text, placed_edits, placed_findings)
+
+
+# -- files -----------------------------------------------------------------------------------
+def decode(data: bytes) -> str:
+    """Bytes to text without loss: invalid UTF-8 bytes survive as surrogates."""
+    return data.decode("utf-8", "surrogateescape")
+
+
+def encode(text: str) -> bytes:
+    return text.encode("utf-8", "surrogateescape")
+
+
+def _read(path: Path) -> tuple[bytes | None, Problem | None]:
+    try:
+        data = path.read_bytes()
+    except OSError as error:
+        return None, Problem(0, f"cannot read: {error.strerror or error}")
+    if b"\x00" in data:
+        return data, Problem(1, "binary file (contains NUL bytes): not processed")
+    return data, None
+
+
+def language_of(path: Path) -> str | None:
+    if path.suffix in FREE_FORM_SUFFIXES:
+        return "fortran"
+    return None
+
+
+def collect(paths: list[str], options: Options) -> tuple[list[Path], list[Result]]:
+    """Files to process from the given paths, and notices for those skipped."""
+    files: list[Path] = []
+    skipped: list[Result] = []
+    for given in paths:
+        path = Path(given)
+        if path.is_dir():
+            for root, dirs, names in os.walk(path):
+                dirs[:] = sorted(d for d in dirs if not d.startswith("."))
+                for name in sorted(names):
+                    candidate = Path(root) / name
+                    if options.excluded(str(candidate)):
+                        continue
+                    if language_of(candidate):
+                        files.append(candidate)
+                    elif candidate.suffix in FIXED_FORM_SUFFIXES:
+                        skipped.append(Result(str(candidate), "", "", notice="fixed-form source is not "
+                                              "supported yet: skipped"))
+        elif path.exists():
+            if language_of(path):
+                files.append(path)
+            elif path.suffix in FIXED_FORM_SUFFIXES:
+                skipped.append(Result(str(path), "", "", notice="fixed-form source is not supported yet: skipped"))
+            else:
+                skipped.append(Result(str(path), "", "", notice="not a free-form Fortran file: skipped"))
+        else:
+            skipped.append(Result(str(path), "", "", problems=(Problem(0, "no such file or directory"),)))
+    return files, skipped
+
+
+def rewrite_paths(paths: list[str], options: Options | None = None) -> list[Result]:
+    """Results for every file under ``paths``, in order; a bad file never stops the batch."""
+    options = options or DEFAULT
+    files, results = collect(paths, options)
+    contents: list[tuple[Path, bytes | None, Problem | None]] = [(f, *_read(f)) for f in files]
+    modules: dict = {}
+    if len(files) > 1:
+        for _path, data, problem in contents:
+            if problem is None and data is not None:
+                try:
+                    modules.update(frontend.collect_modules(decode(data)))
+                except Exception:  # a file that trips the declaration pass is reported below
+                    pass
+    for path, data, problem in contents:
+        if problem is not None:
+            results.append(Result(str(path), "", "", problems=(problem,), data=data))
+            continue
+        text = decode(data)
+        try:
+            result = rewrite_text(text, language_of(path), options, str(path), modules)
+        except RecursionError:
+            result = Result(str(path), text, text, problems=(Problem(1, "expression nesting too deep"),))
+        results.append(replace(result, data=data))
+    return results
+
+
+class WriteError(OSError):
+    pass
+
+
+def write_result(result: Result) -> bool:
+    """Write a changed result in place, atomically (temporary file + rename), keeping the
+    file's permissions. Refuses when the file changed since it was read. True if written."""
+    if not result.changed:
+        return False
+    path = Path(result.path)
+    current = path.read_bytes()
+    if result.data is not None and current != result.data:
+        raise WriteError(f"{path}: changed on disk while it was being processed; not written")
+    mode = stat.S_IMODE(path.stat().st_mode)
+    descriptor, temporary = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".samebits", dir=path.parent)
+    try:
+        with os.fdopen(descriptor, "wb") as handle:
+            handle.write(encode(result.text))
+            handle.flush()
+            os.fsync(handle.fileno())
+        os.chmod(temporary, mode)
+        os.replace(temporary, path)
+    except BaseException:
+        if os.path.exists(temporary):
+            os.unlink(temporary)
+        raise
+    return True

@@ -1,0 +1,98 @@
+"""Options: ``[tool.samebits]`` in pyproject.toml or a samebits.toml, merged with the command line.
+
+Keys (TOML, dashes or underscores):
+  rules        list of rule names to run (default: all)         e.g. ["chain"]
+  line-length  free-form line limit, 132 by default (the standard's); 0 means no limit
+  exclude      glob patterns of paths to skip when walking directories
+"""
+from __future__ import annotations
+
+import fnmatch
+import sys
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
+
+ALL_RULES = ("chain",)
+
+
+class ConfigError(ValueError):
+    pass
+
+
+@dataclass(frozen=True)
+class Options:
+    rules: tuple[str, ...] = ALL_RULES
+    line_length: int = 132
+    exclude: tuple[str, ...] = field(default=())
+    effects: tuple[str, ...] = ("bit-for-bit", "answer-changing")  # which edits to propose
+    source: str = ""  # where the options were read from, for messages
+
+    def excluded(self, path: str) -> bool:
+        return any(fnmatch.fnmatch(path, pattern) or fnmatch.fnmatch(Path(path).name, pattern)
+                   for pattern in self.exclude)
+
+
+DEFAULT = Options()
+
+
+def _table(path: Path) -> dict | None:
+    try:
+        data = tomllib.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError) as error:
+        raise ConfigError(f"{path}: cannot read: {error}") from error
+    except tomllib.TOMLDecodeError as error:
+        raise ConfigError(f"{path}: {error}") from error
+    if path.name == "pyproject.toml":
+        return data.get("tool", {}).get("samebits")
+    return data
+
+
+def find_config(start: Path) -> Path | None:
+    """The nearest samebits.toml, or pyproject.toml with a [tool.samebits] table."""
+    directory = start.resolve()
+    if directory.is_file():
+        directory = directory.parent
+    for candidate in [directory, *directory.parents]:
+        own = candidate / "samebits.toml"
+        if own.is_file():
+            return own
+        project = candidate / "pyproject.toml"
+        if project.is_file() and _table(project) is not None:
+            return project
+    return None
+
+
+def from_table(table: dict, source: str = "") -> Options:
+    values = {key.replace("-", "_"): value for key, value in table.items()}
+    known = {"rules", "line_length", "exclude"}
+    unknown = sorted(set(values) - known)
+    if unknown:
+        raise ConfigError(f"{source}: unknown option(s): {', '.join(unknown)}")
+    options = Options(source=source)
+    if "rules" in values:
+        rules = tuple(values["rules"])
+        bad = [r for r in rules if r not in ALL_RULES]
+        if bad:
+            raise ConfigError(f"{source}: unknown rule(s): {', '.join(bad)}; known: {', '.join(ALL_RULES)}")
+        options = replace(options, rules=rules)
+    if "line_length" in values:
+        length = values["line_length"]
+        if not isinstance(length, int) or length < 0:
+            raise ConfigError(f"{source}: line-length must be a whole number >= 0")
+        options = replace(options, line_length=length)
+    if "exclude" in values:
+        options = replace(options, exclude=tuple(str(p) for p in values["exclude"]))
+    return options
+
+
+def load(start: Path, config_path: Path | None = None) -> Options:
+    path = config_path or find_config(start)
+    if path is None:
+        return DEFAULT
+    table = _table(path)
+    return from_table(table or {}, str(path))

@@ -1,0 +1,1 @@
+"""Fortran front end: free-form source text to sites (see frontend.py)."""

@@ -1,0 +1,139 @@
+"""The language-neutral expression tree that front ends produce and the planner reads.
+
+Every node carries a ``Span`` (offsets into the decoded source text, end exclusive, including
+the node's own source parentheses when it has them) and a ``NumType``. The planner never looks
+at syntax: only at these nodes.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from enum import Enum
+
+
+class Category(str, Enum):
+    INTEGER = "integer"
+    REAL = "real"
+    COMPLEX = "complex"
+    LOGICAL = "logical"
+    CHARACTER = "character"
+    DERIVED = "derived"
+    UNKNOWN = "unknown"
+
+
+@dataclass(frozen=True)
+class NumType:
+    """A value's type: its category and its kind as the source spells it (None: default kind)."""
+
+    category: Category
+    kind: str | None = None
+
+    @property
+    def is_floating(self) -> bool:
+        return self.category in (Category.REAL, Category.COMPLEX)
+
+    @property
+    def is_known(self) -> bool:
+        return self.category is not Category.UNKNOWN
+
+    def __str__(self) -> str:
+        return self.category.value if self.kind is None else f"{self.category.value}({self.kind})"
+
+
+UNKNOWN = NumType(Category.UNKNOWN)
+INTEGER = NumType(Category.INTEGER)
+REAL = NumType(Category.REAL)
+LOGICAL = NumType(Category.LOGICAL)
+CHARACTER = NumType(Category.CHARACTER)
+
+
+def arithmetic_type(left: NumType, right: NumType) -> NumType:
+    """Type of ``left op right`` for a numeric operator (Fortran and Python agree on this)."""
+    cats = {left.category, right.category}
+    if Category.UNKNOWN in cats or not cats <= {Category.INTEGER, Category.REAL, Category.COMPLEX}:
+        return UNKNOWN
+    if Category.COMPLEX in cats:
+        category = Category.COMPLEX
+    elif Category.REAL in cats:
+        category = Category.REAL
+    else:
+        return NumType(Category.INTEGER, left.kind or right.kind)
+    floating = [t for t in (left, right) if t.is_floating]
+    kinds = [t.kind for t in floating if t.kind is not None]
+    return NumType(category, kinds[0] if kinds else None)
+
+
+class Level(str, Enum):
+    """Precedence levels the planner cares about; everything else is OTHER."""
+
+    ADDITIVE = "additive"
+    MULTIPLICATIVE = "multiplicative"
+    POWER = "power"
+    OTHER = "other"
+
+
+@dataclass(frozen=True)
+class Span:
+    start: int
+    end: int
+
+
+@dataclass(frozen=True)
+class Node:
+    span: Span
+    type: NumType
+    parenthesised: bool
+
+    def children(self) -> tuple["Node", ...]:
+        return ()
+
+
+@dataclass(frozen=True)
+class Operand(Node):
+    """A primary: name, literal, array element, call, constructor. ``key`` is its normalised
+    source text (used to tell identical operands apart); ``parts`` are the expressions nested
+    inside it (arguments, subscripts)."""
+
+    key: str = ""
+    parts: tuple[Node, ...] = field(default=())
+
+    def children(self) -> tuple[Node, ...]:
+        return self.parts
+
+
+@dataclass(frozen=True)
+class Operation(Node):
+    operator: str = ""
+    level: Level = Level.OTHER
+    left: Node | None = None
+    right: Node | None = None
+
+    def children(self) -> tuple[Node, ...]:
+        return (self.left, self.right)
+
+
+@dataclass(frozen=True)
+class Unary(Node):
+    operator: str = ""
+    operand: Node | None = None
+
+    def children(self) -> tuple[Node, ...]:
+        return (self.operand,)
+
+
+@dataclass(frozen=True)
+class Site:
+    """One statement's expressions, as the planner sees them."""
+
+    span: Span
+    line: int
+    roots: tuple[Node, ...]
+    context: str
+
+
+def walk(node: Node):
+    """Every node of a tree, parents before children."""
+    stack = [node]
+    while stack:
+        current = stack.pop()
+        yield current
+        stack.extend(reversed([c for c in current.children() if c is not None]))

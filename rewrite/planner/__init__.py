@@ -1,0 +1,30 @@
+"""The planner: rules from sites to edits and findings. It knows no language's syntax.
+
+Each rule is a function ``rule(site, text, options) -> (edits, findings)``; rules do not call
+each other. ``plan`` runs the enabled rules over all sites and keeps edits that can land
+together.
+"""
+from __future__ import annotations
+
+from ..edits import Edit, Finding, compatible
+from ..ir import Site
+from . import chains
+
+RULES = {"chain": chains.plan}
+
+
+def plan(sites: list[Site], text: str, options) -> tuple[list[Edit], list[Finding]]:
+    edits: list[Edit] = []
+    findings: list[Finding] = []
+    for name, rule in RULES.items():
+        if name not in options.rules:
+            continue
+        for site in sites:
+            proposed, noted = rule(site, text, options)
+            for edit in proposed:
+                if compatible(edits, edit):
+                    edits.append(edit)
+                else:
+                    findings.append(Finding(edit.span, edit.rule, "left as it is: overlaps another edit"))
+            findings.extend(noted)
+    return edits, findings
