@@ -78,13 +78,6 @@ def apply_changes(text: str, changes) -> str:
     return "".join(pieces)
 
 
-def preview(text: str, span: Span, changes) -> str:
-    """The text of ``span`` with ``changes`` applied, on one line."""
-    inside = [TextChange(c.start - span.start, c.end - span.start, c.text)
-              for c in changes if span.start <= c.start and c.end <= span.end]
-    return " ".join(apply_changes(text[span.start:span.end], inside).split())
-
-
 def compatible(accepted: list[Edit], candidate: Edit) -> bool:
     """True when ``candidate`` can land beside the accepted edits (no overlapping replacement)."""
     try:

@@ -105,3 +105,21 @@ def render(text: str, edits: list[Edit], limit: int) -> tuple[str, list[Edit]]:
             position = line.start + len(line.text)
     pieces.append(text[position:])
     return "".join(pieces), refused
+
+
+def display(text: str, span, changes) -> str:
+    """One-line text of ``span`` with ``changes`` applied: comments, ``&`` continuation marks
+    and line breaks removed, for reasons and reports."""
+    inside = [TextChange(c.start - span.start, c.end - span.start, c.text)
+              for c in changes if span.start <= c.start and c.end <= span.end]
+    edited = apply_changes(text[span.start:span.end], inside)
+    parts = []
+    for line in edited.splitlines():
+        code = line[:code_length(line)[0]].strip()
+        if code.startswith("&"):
+            code = code[1:].lstrip()
+        if code.endswith("&"):
+            code = code[:-1].rstrip()
+        if code:
+            parts.append(code)
+    return " ".join(" ".join(parts).split())

@@ -13,14 +13,15 @@ from . import chains
 RULES = {"chain": chains.plan}
 
 
-def plan(sites: list[Site], text: str, options) -> tuple[list[Edit], list[Finding]]:
+def plan(sites: list[Site], text: str, options, display) -> tuple[list[Edit], list[Finding]]:
+    """``display(span, changes)`` is the front end's one-line spelling of a piece of text."""
     edits: list[Edit] = []
     findings: list[Finding] = []
     for name, rule in RULES.items():
         if name not in options.rules:
             continue
         for site in sites:
-            proposed, noted = rule(site, text, options)
+            proposed, noted = rule(site, text, options, display)
             for edit in proposed:
                 if compatible(edits, edit):
                     edits.append(edit)

@@ -9,7 +9,7 @@ honoured it, and afterwards no compiler may reorder it.
 """
 from __future__ import annotations
 
-from ..edits import BIT_FOR_BIT, Edit, Finding, TextChange, preview
+from ..edits import BIT_FOR_BIT, Edit, Finding, TextChange
 from ..ir import Category, Level, Node, Operation, Site, Span, arithmetic_type, walk
 
 RULE = "chain"
@@ -62,11 +62,7 @@ def _has_floating_operation(operands: list[Node]) -> bool:
     return False
 
 
-def _text(text: str, node: Node) -> str:
-    return " ".join(text[node.span.start:node.span.end].split())
-
-
-def plan(site: Site, text: str, options) -> tuple[list[Edit], list[Finding]]:
+def plan(site: Site, text: str, options, display) -> tuple[list[Edit], list[Finding]]:
     edits: list[Edit] = []
     findings: list[Finding] = []
     for root in site.roots:
@@ -76,7 +72,7 @@ def plan(site: Site, text: str, options) -> tuple[list[Edit], list[Finding]]:
                 continue
             unknown = [o for o in operands if o.type.category is Category.UNKNOWN]
             if unknown:
-                names = ", ".join(f"'{_text(text, o)}'" for o in unknown[:3])
+                names = ", ".join(f"'{display(o.span, ())}'" for o in unknown[:3])
                 findings.append(Finding(Span(operands[0].span.start, operands[-1].span.end), RULE,
                                         f"unresolved chain not edited: the type of {names} is unknown"))
                 continue
@@ -84,16 +80,16 @@ def plan(site: Site, text: str, options) -> tuple[list[Edit], list[Finding]]:
                 continue
             if not _has_floating_operation(operands) or _order_free(operands, operators):
                 continue
-            edits.append(_pin_written_order(site, text, operands))
+            edits.append(_pin_written_order(operands, display))
     return edits, findings
 
 
-def _pin_written_order(site: Site, text: str, operands: list[Node]) -> Edit:
+def _pin_written_order(operands: list[Node], display) -> Edit:
     span = Span(operands[0].span.start, operands[-1].span.end)
     changes = [TextChange(span.start, span.start, "(" * (len(operands) - 2))]
     changes += [TextChange(o.span.end, o.span.end, ")") for o in operands[1:-1]]
-    before = preview(text, span, [])
-    after = preview(text, span, changes)
+    before = display(span, ())
+    after = display(span, changes)
     reason = (f"pins the written left-to-right order: {after}; unparenthesised, the compiler may "
               f"evaluate it in any mathematically equivalent order")
     return Edit(span, tuple(changes), RULE, BIT_FOR_BIT, reason, before, after)

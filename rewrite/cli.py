@@ -1,0 +1,132 @@
+"""The ``samebits`` command: click commands only; the work is in ``api``."""
+from __future__ import annotations
+
+import sys
+from dataclasses import replace
+from pathlib import Path
+
+import click
+
+from . import __version__, api
+from .config import ConfigError, load
+from .edits import EFFECTS
+from .report import diff as diff_report
+from .report import json_report, text
+
+_paths = click.argument("paths", nargs=-1, required=True, type=click.Path())
+_effect = click.option("--effect", type=click.Choice(EFFECTS), default=None,
+                       help="Propose only edits of this effect.")
+_config = click.option("--config", "config_path", type=click.Path(exists=True, dir_okay=False), default=None,
+                       help="Read options from this TOML file instead of the nearest "
+                            "samebits.toml / pyproject.toml [tool.samebits].")
+_line_length = click.option("--line-length", type=click.IntRange(min=0), default=None,
+                            help="Free-form line limit (default 132; 0: no limit).")
+
+
+def _options(paths, effect, config_path, line_length):
+    try:
+        options = load(Path(paths[0]) if paths else Path.cwd(), Path(config_path) if config_path else None)
+    except ConfigError as error:
+        click.echo(f"samebits: {error}", err=True)
+        sys.exit(2)
+    if effect:
+        options = replace(options, effects=(effect,))
+    if line_length is not None:
+        options = replace(options, line_length=line_length)
+    return options
+
+
+def _report_problems(results) -> bool:
+    failed = False
+    for result in results:
+        for line in text.problem_lines(result):
+            click.echo(line, err=True)
+        failed = failed or bool(result.problems)
+    return failed
+
+
+def _write(data: str) -> None:
+    stream = sys.stdout.buffer if hasattr(sys.stdout, "buffer") else None
+    if stream is None:
+        sys.stdout.write(data)
+        return
+    sys.stdout.flush()
+    stream.write(api.encode(data))
+    stream.flush()
+
+
+@click.group()
+@click.version_option(__version__, prog_name="samebits")
+def main():
+    """Rewrite Fortran arithmetic so that it gives the same bits on every build.
+
+    Exit status: 0 nothing to propose, 1 proposals (check), 2 errors.
+    """
+
+
+@main.command()
+@_paths
+@_effect
+@_config
+@_line_length
+@click.option("--format", "output_format", type=click.Choice(["text", "json"]), default="text",
+              help="text: one line per proposal and finding; json: one document for editors.")
+def check(paths, effect, config_path, line_length, output_format):
+    """List proposals as file:line:col: rule: effect: reason (exit 1 if any)."""
+    options = _options(paths, effect, config_path, line_length)
+    results = api.rewrite_paths(list(paths), options)
+    failed = _report_problems(results)
+    if output_format == "json":
+        _write(json_report.report(results) + "\n")
+    else:
+        lines = []
+        for result in results:
+            lines.extend(text.edit_lines(result))
+            lines.extend(text.finding_lines(result))
+        if lines:
+            _write("\n".join(lines) + "\n")
+    proposals = sum(len(r.edits) for r in results)
+    sys.exit(2 if failed else (1 if proposals else 0))
+
+
+@main.command()
+@_paths
+@_effect
+@_config
+@_line_length
+def diff(paths, effect, config_path, line_length):
+    """Print the proposals as a unified diff (for git apply / patch -p1)."""
+    options = _options(paths, effect, config_path, line_length)
+    results = api.rewrite_paths(list(paths), options)
+    failed = _report_problems(results)
+    _write("".join(diff_report.result_diff(r) for r in results if r.changed))
+    sys.exit(2 if failed else 0)
+
+
+@main.command()
+@_paths
+@_effect
+@_config
+@_line_length
+def apply(paths, effect, config_path, line_length):
+    """Rewrite the files in place (atomically; files with errors stay untouched)."""
+    options = _options(paths, effect, config_path, line_length)
+    results = api.rewrite_paths(list(paths), options)
+    failed = _report_problems(results)
+    for result in results:
+        if not result.changed:
+            continue
+        try:
+            api.write_result(result)
+        except OSError as error:
+            click.echo(f"{result.path}: not written: {error}", err=True)
+            failed = True
+            continue
+        answer_changing = sum(1 for e in result.edits if e.effect == "answer-changing")
+        note = f" ({answer_changing} ANSWER-CHANGING)" if answer_changing else ""
+        click.echo(f"{text.shown(result.path)}: {len(result.edits)} edit(s) applied{note}", err=True)
+    sys.exit(2 if failed else 0)
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main()

@@ -1,0 +1,1 @@
+"""Output formats: check lines, unified diff, JSON for editors."""

@@ -1,0 +1,22 @@
+"""Check lines, ``file:line:col: rule: effect: reason``, and problem lines ``file:line: message``."""
+from __future__ import annotations
+
+from .paths import shown  # noqa: F401  (re-exported for the CLI)
+
+
+def edit_lines(result) -> list[str]:
+    name = shown(result.path)
+    return [f"{name}:{e.line}:{e.column}: {e.rule}: {e.effect}: {e.reason}" for e in result.edits]
+
+
+def finding_lines(result) -> list[str]:
+    name = shown(result.path)
+    return [f"{name}:{f.line}:{f.column}: {f.rule}: {f.severity}: {f.message}" for f in result.findings]
+
+
+def problem_lines(result) -> list[str]:
+    name = shown(result.path)
+    lines = [f"{name}:{p.line}: {p.message}" if p.line else f"{name}: {p.message}" for p in result.problems]
+    if result.notice:
+        lines.append(f"{name}: {result.notice}")
+    return lines
