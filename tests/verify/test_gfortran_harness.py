@@ -16,6 +16,7 @@ from rewrite.verify.gfortran import (
     expression_program,
     order_by_modules,
 )
+from rewrite.verify.textdiff import parenthesis_insertions
 
 
 def test_stream_round_trip_keeps_every_bit(gfortran):
@@ -101,3 +102,25 @@ def test_check_syntax_orders_modules_and_reports_errors(tmp_path, gfortran):
     lone.write_text("subroutine t\n  use nowhere_mod\nend subroutine t\n")
     (res,) = check_syntax([lone], compiler=gfortran)
     assert not res.ok and "module" in res.output.lower()
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    text=st.text(alphabet="ab+*() ", max_size=30),
+    where=st.lists(st.tuples(st.integers(0, 30), st.sampled_from("()")), max_size=6),
+)
+def test_parenthesis_insertions_finds_exactly_the_inserted(text, where):
+    # Property against a direct construction: insert parentheses at known
+    # places; the helper must accept, and deleting what it reports must give
+    # the original back.
+    out = list(text)
+    for pos, ch in sorted(where, reverse=True):
+        out.insert(min(pos, len(out)), ch)
+    rewritten = "".join(out)
+    ins = parenthesis_insertions(text, rewritten)
+    assert ins is not None and len(ins) == len(where)
+    assert "".join(c for j, c in enumerate(rewritten) if j not in set(ins)) == text
+    # Any other change is refused.
+    if text:
+        assert parenthesis_insertions(text, rewritten.replace(text[-1], "x")) is None
+        assert parenthesis_insertions(text + "+", rewritten) is None

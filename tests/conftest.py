@@ -1,0 +1,24 @@
+"""Shared helpers for the tests."""
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parent.parent
+FIXTURES = ROOT / "fixtures"
+
+
+@pytest.fixture
+def fixtures() -> Path:
+    return FIXTURES
+
+
+def module(body: str, declarations: str = "real(dp) :: a, b, c, d, e, x, y, z\n    integer :: i, j, k, n") -> str:
+    """A compilable module around executable statements."""
+    return (
+        "module sample\n  implicit none\n  integer, parameter :: dp = kind(1.0d0)\ncontains\n"
+        f"  subroutine work()\n    {declarations}\n"
+        + "".join(f"    {line}\n" for line in body.strip("\n").splitlines())
+        + "  end subroutine work\nend module sample\n"
+    )
