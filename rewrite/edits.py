@@ -6,6 +6,7 @@ the original text, so every byte outside them stays as it was.
 """
 from __future__ import annotations
 
+import bisect
 from dataclasses import dataclass
 
 from .ir import Span
@@ -78,10 +79,47 @@ def apply_changes(text: str, changes) -> str:
     return "".join(pieces)
 
 
-def compatible(accepted: list[Edit], candidate: Edit) -> bool:
-    """True when ``candidate`` can land beside the accepted edits (no overlapping replacement)."""
-    try:
-        _ordered([c for e in accepted for c in e.changes] + list(candidate.changes))
-    except OverlapError:
+class Occupancy:
+    """The places already taken by accepted edits, to refuse an edit that would overlap one.
+
+    Insertions never collide with each other; a replacement collides with any change strictly
+    inside it or overlapping it.
+    """
+
+    def __init__(self):
+        self._replaced: list[tuple[int, int]] = []  # sorted, disjoint
+        self._inserted: list[int] = []  # sorted offsets
+
+    def _hits_replacement(self, start: int, end: int) -> bool:
+        index = bisect.bisect_right(self._replaced, (start, float("inf"))) - 1
+        for neighbour in self._replaced[max(index, 0):index + 2]:
+            low, high = neighbour
+            if start == end:
+                if low < start < high:
+                    return True
+            elif start < high and low < end:
+                return True
         return False
-    return True
+
+    def _hits_insertion(self, start: int, end: int) -> bool:
+        index = bisect.bisect_right(self._inserted, start)
+        return index < len(self._inserted) and self._inserted[index] < end
+
+    def fits(self, edit: Edit) -> bool:
+        for change in edit.changes:
+            if self._hits_replacement(change.start, change.end):
+                return False
+            if change.start < change.end and self._hits_insertion(change.start, change.end):
+                return False
+        try:
+            _ordered(edit.changes)
+        except OverlapError:
+            return False
+        return True
+
+    def take(self, edit: Edit) -> None:
+        for change in edit.changes:
+            if change.start == change.end:
+                bisect.insort(self._inserted, change.start)
+            else:
+                bisect.insort(self._replaced, (change.start, change.end))

@@ -6,7 +6,7 @@ together.
 """
 from __future__ import annotations
 
-from ..edits import Edit, Finding, compatible
+from ..edits import Edit, Finding, Occupancy
 from ..ir import Site
 from . import chains
 
@@ -17,13 +17,15 @@ def plan(sites: list[Site], text: str, options, display) -> tuple[list[Edit], li
     """``display(span, changes)`` is the front end's one-line spelling of a piece of text."""
     edits: list[Edit] = []
     findings: list[Finding] = []
+    taken = Occupancy()
     for name, rule in RULES.items():
         if name not in options.rules:
             continue
         for site in sites:
             proposed, noted = rule(site, text, options, display)
             for edit in proposed:
-                if compatible(edits, edit):
+                if taken.fits(edit):
+                    taken.take(edit)
                     edits.append(edit)
                 else:
                     findings.append(Finding(edit.span, edit.rule, "left as it is: overlaps another edit"))

@@ -86,3 +86,23 @@ def test_statement_with_sign_after_operator_is_left_with_a_finding():
     result = rewrite_text(module("x = a * -b * c"))
     assert result.edits == ()
     assert any(f.rule == "not-analysed" for f in result.findings)
+
+
+def test_occupancy_refuses_overlaps_and_accepts_insertions():
+    from rewrite.edits import Edit, Occupancy, TextChange
+    from rewrite.ir import Span
+
+    def edit(*changes):
+        return Edit(Span(0, 0), tuple(TextChange(*c) for c in changes), "r", "bit-for-bit", "")
+
+    taken = Occupancy()
+    first = edit((5, 5, "("), (9, 9, ")"))
+    assert taken.fits(first)
+    taken.take(first)
+    assert taken.fits(edit((5, 5, "("), (7, 7, ")")))  # insertions never collide
+    assert not taken.fits(edit((4, 8, "x")))  # a replacement around an insertion
+    assert taken.fits(edit((10, 12, "y")))
+    taken.take(edit((10, 12, "y")))
+    assert not taken.fits(edit((11, 11, "(")))  # an insertion inside a replacement
+    assert taken.fits(edit((12, 12, ")")))  # at its end is fine
+    assert not taken.fits(edit((11, 14, "z")))
