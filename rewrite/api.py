@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import bisect
 import os
+import re
 import stat
 import tempfile
 from dataclasses import dataclass, field, replace
@@ -153,14 +154,8 @@ def rewrite_paths(paths: list[str], options: Options | None = None) -> list[Resu
     options = options or DEFAULT
     files, results = collect(paths, options)
     contents: list[tuple[Path, bytes | None, Problem | None]] = [(f, *_read(f)) for f in files]
-    modules: dict = {}
-    if len(files) > 1:
-        for _path, data, problem in contents:
-            if problem is None and data is not None:
-                try:
-                    modules.update(frontend.collect_modules(decode(data)))
-                except Exception:  # a file that trips the declaration pass is reported below
-                    pass
+    texts = [decode(data) for _path, data, problem in contents if problem is None and data is not None]
+    modules = _batch_modules(texts, [path for path, _data, _problem in contents], options)
     for path, data, problem in contents:
         if problem is not None:
             results.append(Result(str(path), "", "", problems=(problem,), data=data))
@@ -170,8 +165,62 @@ def rewrite_paths(paths: list[str], options: Options | None = None) -> list[Resu
             result = rewrite_text(text, language_of(path), options, str(path), modules)
         except RecursionError:
             result = Result(str(path), text, text, problems=(Problem(1, "expression nesting too deep"),))
+        except Exception as error:  # a bug of ours must not stop the batch or touch the file
+            result = Result(str(path), text, text,
+                            problems=(Problem(1, f"internal error, file left as it is: {error!r}"),))
         results.append(replace(result, data=data))
     return results
+
+
+_MODULE_LINE = re.compile(r"^[ \t]*module[ \t]+([a-z][a-z0-9_]*)[ \t]*(?:!.*)?$", re.IGNORECASE | re.MULTILINE)
+_USE_LINE = re.compile(r"^[ \t]*use\b(?:[ \t]*,[ \t]*(?:non_)?intrinsic)?[ \t]*(?:::)?[ \t]*([a-z][a-z0-9_]*)",
+                       re.IGNORECASE | re.MULTILINE)
+
+
+def _modules_of(text: str) -> dict:
+    try:
+        return frontend.collect_modules(text)
+    except Exception:  # a file that trips the declaration pass is reported when it is rewritten
+        return {}
+
+
+def _batch_modules(texts: list[str], paths: list[Path], options: Options) -> dict:
+    """Modules that the files of a run can USE: those they define, and those found in the
+    files' own directories and the configured module path."""
+    defined = {name.lower() for text in texts for name in _MODULE_LINE.findall(text)}
+    used = {name.lower() for text in texts for name in _USE_LINE.findall(text)}
+    modules: dict = {}
+    if len(texts) > 1:
+        for text in texts:
+            modules.update(_modules_of(text))
+    missing = used - defined
+    if not missing:
+        return modules
+    seen = {path.resolve() for path in paths}
+    candidates: list[Path] = []
+    for directory in dict.fromkeys([path.parent for path in paths]):
+        candidates.extend(sorted(p for p in directory.iterdir() if language_of(p) and p.is_file()))
+    for directory in options.module_path:
+        for root, dirs, names in os.walk(directory):
+            dirs[:] = sorted(d for d in dirs if not d.startswith("."))
+            candidates.extend(Path(root) / n for n in sorted(names) if language_of(Path(root) / n))
+    for candidate in candidates:
+        if not missing:
+            break
+        if candidate.resolve() in seen:
+            continue
+        seen.add(candidate.resolve())
+        data, problem = _read(candidate)
+        if problem is not None or data is None:
+            continue
+        text = decode(data)
+        if not {n.lower() for n in _MODULE_LINE.findall(text)} & missing:
+            continue
+        found = _modules_of(text)
+        modules.update(found)
+        defined |= set(found)
+        missing = (missing | {n.lower() for n in _USE_LINE.findall(text)}) - defined
+    return modules
 
 
 class WriteError(OSError):

@@ -4,6 +4,8 @@ Keys (TOML, dashes or underscores):
   rules        list of rule names to run (default: all)         e.g. ["chain"]
   line-length  free-form line limit, 132 by default (the standard's); 0 means no limit
   exclude      glob patterns of paths to skip when walking directories
+  module-path  directories searched for the modules that a file USEs (relative to the config
+               file); the directories of the given files are always searched
 """
 from __future__ import annotations
 
@@ -30,6 +32,7 @@ class Options:
     line_length: int = 132
     exclude: tuple[str, ...] = field(default=())
     effects: tuple[str, ...] = ("bit-for-bit", "answer-changing")  # which edits to propose
+    module_path: tuple[str, ...] = field(default=())
     source: str = ""  # where the options were read from, for messages
 
     def excluded(self, path: str) -> bool:
@@ -69,7 +72,7 @@ def find_config(start: Path) -> Path | None:
 
 def from_table(table: dict, source: str = "") -> Options:
     values = {key.replace("-", "_"): value for key, value in table.items()}
-    known = {"rules", "line_length", "exclude"}
+    known = {"rules", "line_length", "exclude", "module_path"}
     unknown = sorted(set(values) - known)
     if unknown:
         raise ConfigError(f"{source}: unknown option(s): {', '.join(unknown)}")
@@ -87,6 +90,9 @@ def from_table(table: dict, source: str = "") -> Options:
         options = replace(options, line_length=length)
     if "exclude" in values:
         options = replace(options, exclude=tuple(str(p) for p in values["exclude"]))
+    if "module_path" in values:
+        base = Path(source).parent if source else Path.cwd()
+        options = replace(options, module_path=tuple(str(base / p) for p in values["module_path"]))
     return options
 
 

@@ -81,3 +81,20 @@ def test_config_from_pyproject(tmp_path):
     (tmp_path / "pyproject.toml").write_text("[tool.samebits]\nno-such-option = 1\n")
     run = _run("check", "one.f90", cwd=tmp_path)
     assert run.returncode == 2 and "unknown option" in run.stderr
+
+
+def test_modules_are_found_beside_a_single_file(tmp_path):
+    (tmp_path / "kinds.f90").write_text("module kinds\n  implicit none\n  integer, parameter :: dp = kind(1.0d0)\n"
+                                        "  real(dp), parameter :: g = 9.81_dp\nend module kinds\n")
+    (tmp_path / "use_it.f90").write_text("module user\n  use kinds\n  implicit none\ncontains\n"
+                                         "  subroutine s(a)\n    real(dp) :: a\n    a = a + g + 1.0_dp\n"
+                                         "  end subroutine\nend module user\n")
+    run = _run("check", "use_it.f90", cwd=tmp_path)
+    assert run.returncode == 1 and "use_it.f90:7:9: chain: bit-for-bit" in run.stdout
+    (tmp_path / "lib").mkdir()
+    (tmp_path / "kinds.f90").rename(tmp_path / "lib" / "kinds.f90")
+    run = _run("check", "use_it.f90", cwd=tmp_path)
+    assert run.returncode == 0 and "unresolved" in run.stdout
+    (tmp_path / "samebits.toml").write_text('module-path = ["lib"]\n')
+    run = _run("check", "use_it.f90", cwd=tmp_path)
+    assert run.returncode == 1 and "bit-for-bit" in run.stdout

@@ -31,9 +31,10 @@ import subprocess
 import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Iterable, Sequence
+from typing import TYPE_CHECKING, Iterable, Sequence
 
-import numpy as np
+if TYPE_CHECKING:  # NumPy is needed only by the data-exchange helpers
+    import numpy as np
 
 __all__ = [
     "CompileError",
@@ -148,6 +149,8 @@ def write_stream(path: str | os.PathLike, *arrays: np.ndarray) -> None:
     A NumPy array in C order of shape ``(rows, cols)`` is read by Fortran as
     an array ``x(cols, rows)`` (column-major), i.e. ``x(:, i)`` is row ``i``.
     """
+    import numpy as np
+
     with open(path, "wb") as fh:
         for arr in arrays:
             fh.write(np.ascontiguousarray(arr).tobytes(order="C"))
@@ -155,6 +158,8 @@ def write_stream(path: str | os.PathLike, *arrays: np.ndarray) -> None:
 
 def read_stream(path: str | os.PathLike, dtype, shape: tuple[int, ...]) -> np.ndarray:
     """Read raw native-endian data written by Fortran stream I/O."""
+    import numpy as np
+
     data = np.fromfile(path, dtype=dtype)
     expected = int(np.prod(shape))
     if data.size != expected:
@@ -375,6 +380,8 @@ def evaluate_expressions(
     ``workdir``: build there (kept); default a temporary directory removed
     afterwards.
     """
+    import numpy as np
+
     inputs = np.ascontiguousarray(inputs, dtype=np.float64)
     if inputs.ndim != 2:
         raise ValueError("inputs must be a 2-d array (rows x columns)")
