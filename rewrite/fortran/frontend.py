@@ -443,10 +443,14 @@ class _Builder:
         if not scope.seen_executable and _assignment_kind(tokens) == "assignment" and len(tokens) > 1 \
                 and tokens[1].kind == "(":
             name = tokens[0].lower
-            existing = Resolver(self.program, scope, intrinsics.result_type).lookup(name)
+            resolver = Resolver(self.program, scope, intrinsics.result_type)
+            existing = resolver.lookup(name)
             if not (isinstance(existing, Symbol) and existing.is_array):
                 statement_function = scope.symbol(name)
                 statement_function.is_function = True
+                if statement_function.type is None:
+                    implicit = resolver.implicit_type(name)
+                    statement_function.type = implicit if implicit.is_known else None
         else:
             scope.seen_executable = True
         self.pending.append(_Pending(statement, tokens, scope))
