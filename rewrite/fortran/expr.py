@@ -113,14 +113,17 @@ class ExpressionParser:
     def _binary(self, left: Node, operator: str, level: Level, right: Node, type_: NumType) -> Node:
         return Operation(Span(left.span.start, right.span.end), type_, False, operator, level, left, right)
 
-    def _logical_level(self, operators: set[str], inner) -> Node:
-        left = inner()
-        while self.peek() is not None and self.peek().lower in operators:
+    def _fold(self, left: Node, operators: set[str], inner, level: Level, result) -> Node:
+        """Operators of one level, grouped left to right."""
+        while self.peek() is not None and self.peek().kind != "string" and self.peek().lower in operators:
             operator = self.peek().lower
             self.pos += 1
             right = inner()
-            left = self._binary(left, operator, Level.OTHER, right, LOGICAL)
+            left = self._binary(left, operator, level, right, result(left.type, right.type))
         return left
+
+    def _logical_level(self, operators: set[str], inner) -> Node:
+        return self._fold(inner(), operators, inner, Level.OTHER, lambda _l, _r: LOGICAL)
 
     def _equivalence(self) -> Node:
         return self._logical_level({".eqv.", ".neqv.", ".xor."}, self._disjunction)
@@ -150,12 +153,7 @@ class ExpressionParser:
         return left
 
     def _concatenation(self) -> Node:
-        left = self._level2()
-        while self.at("//"):
-            self.pos += 1
-            right = self._level2()
-            left = self._binary(left, "//", Level.OTHER, right, CHARACTER)
-        return left
+        return self._fold(self._level2(), {"//"}, self._level2, Level.OTHER, lambda _l, _r: CHARACTER)
 
     def _level2(self) -> Node:
         first = self.pos
@@ -167,22 +165,11 @@ class ExpressionParser:
                                operand.type, False, sign, operand)
         else:
             left = self._add_operand()
-        while self.at("+", "-"):
-            operator = self.peek().text
-            self.pos += 1
-            right = self._add_operand()
-            left = self._binary(left, operator, Level.ADDITIVE, right, arithmetic_type(left.type, right.type))
-        return left
+        return self._fold(left, {"+", "-"}, self._add_operand, Level.ADDITIVE, arithmetic_type)
 
     def _add_operand(self) -> Node:
-        left = self._mult_operand()
-        while self.at("*", "/") and self.peek().text in ("*", "/"):
-            operator = self.peek().text
-            self.pos += 1
-            right = self._mult_operand()
-            left = self._binary(left, operator, Level.MULTIPLICATIVE, right,
-                                arithmetic_type(left.type, right.type))
-        return left
+        return self._fold(self._mult_operand(), {"*", "/"}, self._mult_operand, Level.MULTIPLICATIVE,
+                          arithmetic_type)
 
     def _mult_operand(self) -> Node:
         base = self._level1()
