@@ -81,8 +81,7 @@ def check(paths, effect, config_path, line_length, output_format):
     else:
         lines = []
         for result in results:
-            lines.extend(text.edit_lines(result))
-            lines.extend(text.finding_lines(result))
+            lines.extend(text.check_lines(result))
         if lines:
             _write("\n".join(lines) + "\n")
     proposals = sum(len(r.edits) for r in results)
