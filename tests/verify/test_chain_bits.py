@@ -278,6 +278,12 @@ class Chain(Node):
         return [self] + [c for x in self.operands for c in x.chains()]
 
 
+def _unparenthesised(node: Node) -> Node:
+    while isinstance(node, Paren):
+        node = node.inner
+    return node
+
+
 def expected_pairs(node: Node):
     """Parenthesis pairs the rule should insert, or None when not predictable.
 
@@ -292,9 +298,10 @@ def expected_pairs(node: Node):
     for ch in node.chains():
         if len(ch.operands) < 3:
             continue
-        texts = {x.render() for x in ch.operands}
+        bare = [_unparenthesised(x) for x in ch.operands]
+        texts = {x.render() for x in bare}
         if len(ch.operands) == 3 and len(texts) == 1 and len(set(ch.ops)) == 1 and ch.ops[0] in "+*":
-            if isinstance(ch.operands[0], Var):
+            if isinstance(bare[0], Var):  # x, or (x): the same value
                 continue
             return None
         if ch.has_real_operation:
