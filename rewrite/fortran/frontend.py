@@ -179,7 +179,6 @@ class _Builder:
         self.result.problems.append(Problem(statement.line, message))
 
     def push(self, scope: Scope) -> None:
-        self.scope.children.append(scope)
         self.stack.append(scope)
 
     def statement(self, statement: Statement, tokens: list[Token]) -> None:
@@ -680,11 +679,7 @@ def analyse(text: str, known_modules: dict[str, Scope] | None = None) -> FrontEn
 
 
 def collect_modules(text: str) -> dict[str, Scope]:
-    """Module scopes defined in ``text`` (for USE across the files of a batch)."""
-    return analyse_declarations(text)
-
-
-def analyse_declarations(text: str) -> dict[str, Scope]:
+    """Module scopes defined in ``text`` (pass 1 only; for USE across the files of a batch)."""
     result = FrontEndResult()
     statements, _ = logical_statements(text)
     program = Program()

@@ -22,9 +22,6 @@ class Statement:
     end_line: int
     interrupted: bool  # a preprocessor line sits inside it
 
-    def file_offset(self, index: int) -> int:
-        return self.offsets[index]
-
 
 @dataclass(frozen=True)
 class SourceProblem:

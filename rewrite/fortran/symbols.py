@@ -54,7 +54,6 @@ class Scope:
     opaque: bool = False  # INCLUDE or unknown imports: undeclared names are unknown
     result_name: str | None = None
     seen_executable: bool = False
-    children: list["Scope"] = field(default_factory=list)
 
     def symbol(self, name: str) -> Symbol:
         found = self.symbols.get(name)

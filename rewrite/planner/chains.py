@@ -5,7 +5,8 @@ multiplicative ``* /``) with no parentheses of their own between them. The stand
 compiler evaluate such a chain in any mathematically equivalent order (Fortran 2018,
 10.1.5.2.4), which in floating point gives other bits. Pinning the written left-to-right order
 keeps the language's own interpretation: the edit is bit-for-bit wherever the compiler already
-honoured it, and afterwards no compiler may reorder it.
+honoured it, and afterwards a standard-conforming compiler may not reorder it (fast-math
+modes are not standard-conforming: see docs/rules.md).
 """
 from __future__ import annotations
 
