@@ -20,7 +20,7 @@ from . import planner
 from .config import DEFAULT, Options
 from .edits import Edit, Finding, Problem
 from .fortran import frontend
-from .fortran.render import display, render
+from .fortran.render import FortranSpelling, render
 from .fortran.source import FIXED_FORM_SUFFIXES, FREE_FORM_SUFFIXES, code_length, physical_lines
 
 
@@ -74,8 +74,7 @@ def rewrite_text(text: str, language: str = "fortran", options: Options | None =
     analysed = frontend.analyse(text, known_modules)
     if analysed.problems:
         return Result(path, text, text, findings=tuple(analysed.findings), problems=tuple(analysed.problems))
-    edits, findings = planner.plan(analysed.sites, text, options,
-                                   lambda span, changes: display(text, span, changes))
+    edits, findings = planner.plan(analysed.sites, text, options, FortranSpelling(text))
     edits = [e for e in edits if e.effect in options.effects]
     new_text, refused = render(text, edits, options.line_length)
     findings = list(analysed.findings) + findings

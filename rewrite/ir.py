@@ -89,12 +89,15 @@ class Node:
 
 @dataclass(frozen=True)
 class Operand(Node):
-    """A primary: name, literal, array element, call, constructor. ``key`` is its normalised
-    source text (used to tell identical operands apart); ``parts`` are the expressions nested
-    inside it (arguments, subscripts)."""
+    """A primary. ``form`` says which: "name" (a variable), "element" (array element or
+    component of variables, no call), "call" (function reference), "literal", "constructor",
+    "section" (a subscript triplet) or "other". ``key`` is its normalised source text (used to
+    tell identical operands apart); ``parts`` are the expressions nested inside it (arguments,
+    subscripts)."""
 
     key: str = ""
     parts: tuple[Node, ...] = field(default=())
+    form: str = "other"
 
     def children(self) -> tuple[Node, ...]:
         return self.parts
@@ -106,6 +109,7 @@ class Operation(Node):
     level: Level = Level.OTHER
     left: Node | None = None
     right: Node | None = None
+    operator_span: Span | None = None
 
     def children(self) -> tuple[Node, ...]:
         return (self.left, self.right)

@@ -44,6 +44,8 @@ class Resolver(Protocol):
 
     def component_type(self, base: NumType, component: str) -> NumType: ...
 
+    def is_variable(self, name: str) -> bool: ...
+
 
 def literal_type(token: Token) -> NumType:
     text = token.lower
@@ -110,16 +112,20 @@ class ExpressionParser:
         token = self.peek()
         return token is not None and token.kind == "dotop" and token.lower not in _INTRINSIC_DOTOPS
 
-    def _binary(self, left: Node, operator: str, level: Level, right: Node, type_: NumType) -> Node:
-        return Operation(Span(left.span.start, right.span.end), type_, False, operator, level, left, right)
+    def _binary(self, left: Node, operator: str, level: Level, right: Node, type_: NumType,
+                operator_index: int | None = None) -> Node:
+        operator_span = None if operator_index is None else self.span(operator_index, operator_index)
+        return Operation(Span(left.span.start, right.span.end), type_, False, operator, level, left, right,
+                         operator_span)
 
     def _fold(self, left: Node, operators: set[str], inner, level: Level, result) -> Node:
         """Operators of one level, grouped left to right."""
         while self.peek() is not None and self.peek().kind != "string" and self.peek().lower in operators:
             operator = self.peek().lower
+            operator_index = self.pos
             self.pos += 1
             right = inner()
-            left = self._binary(left, operator, level, right, result(left.type, right.type))
+            left = self._binary(left, operator, level, right, result(left.type, right.type), operator_index)
         return left
 
     def _logical_level(self, operators: set[str], inner) -> Node:
@@ -174,6 +180,7 @@ class ExpressionParser:
     def _mult_operand(self) -> Node:
         base = self._level1()
         if self.at("**"):
+            operator_index = self.pos
             self.pos += 1
             exponent = self._mult_operand()
             type_ = base.type
@@ -183,7 +190,7 @@ class ExpressionParser:
                 type_ = UNKNOWN if not base.type.is_floating else base.type
             elif base.type.category is Category.REAL and exponent.type.category is Category.COMPLEX:
                 type_ = exponent.type
-            return self._binary(base, "**", Level.POWER, exponent, type_)
+            return self._binary(base, "**", Level.POWER, exponent, type_, operator_index)
         return base
 
     def _level1(self) -> Node:
@@ -207,7 +214,7 @@ class ExpressionParser:
         first = self.pos
         if token.kind in ("int", "real", "string", "logical", "boz"):
             self.pos += 1
-            node: Node = Operand(self.span(first, first), literal_type(token), False, token.lower)
+            node: Node = Operand(self.span(first, first), literal_type(token), False, token.lower, (), "literal")
             if token.kind == "string" and self.at("("):
                 node = self._substring(node, first)
             return node
@@ -232,7 +239,7 @@ class ExpressionParser:
             if not (inner.type.is_known and imaginary.type.is_known):
                 type_ = UNKNOWN
             return Operand(self.span(first, self.pos - 1), type_, False, self.key(first, self.pos - 1),
-                           (inner, imaginary))
+                           (inner, imaginary), "constructor")
         self.expect(")")
         return replace(inner, span=self.span(first, self.pos - 1), parenthesised=True)
 
@@ -247,11 +254,13 @@ class ExpressionParser:
         name = self.peek().lower
         self.pos += 1
         parts: list[Node] = []
+        form = "name"
         if self.at("("):
             self.pos += 1
             arguments = self._section_list(")")
             parts.extend(a.value for a in arguments if a.value is not None)
             type_ = self.resolver.reference_type(name, arguments)
+            form = "element" if self.resolver.is_variable(name) else "call"
         else:
             type_ = self.resolver.name_type(name)
         while True:
@@ -259,6 +268,7 @@ class ExpressionParser:
                 self.pos += 1
                 component = self.expect("name").lower
                 type_ = self.resolver.component_type(type_, component)
+                form = "element" if form == "name" else form
                 if self.at("("):
                     self.pos += 1
                     arguments = self._section_list(")")
@@ -271,7 +281,8 @@ class ExpressionParser:
                 raise Unsupported("coarray image selectors are not analysed", self.pos)
             else:
                 break
-        return Operand(self.span(first, self.pos - 1), type_, False, self.key(first, self.pos - 1), tuple(parts))
+        return Operand(self.span(first, self.pos - 1), type_, False, self.key(first, self.pos - 1), tuple(parts),
+                       form)
 
     def _section_list(self, closing: str) -> list[Argument]:
         """Arguments or section subscripts up to the closing token (consumed)."""
@@ -312,7 +323,7 @@ class ExpressionParser:
         if not bounds:
             return Argument(keyword, None)
         span = Span(bounds[0].span.start, bounds[-1].span.end)
-        return Argument(keyword, Operand(span, INTEGER, False, ":", tuple(bounds)))
+        return Argument(keyword, Operand(span, INTEGER, False, ":", tuple(bounds), "section"))
 
     def _constructor(self) -> Node:
         first = self.pos

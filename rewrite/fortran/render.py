@@ -123,3 +123,33 @@ def display(text: str, span, changes) -> str:
         if code:
             parts.append(code)
     return " ".join(" ".join(parts).split())
+
+
+class FortranSpelling:
+    """How the planner's edits are spelt in Fortran (the planner knows no syntax)."""
+
+    language = "fortran"
+
+    def __init__(self, text: str):
+        self.text = text
+
+    def display(self, span, changes=()) -> str:
+        return display(self.text, span, changes)
+
+    def spans_lines(self, span) -> bool:
+        """True when the span crosses a line break (replacing it could drop a comment)."""
+        return "\n" in self.text[span.start:span.end]
+
+    @staticmethod
+    def real_literal(value: str, type_) -> str:
+        """``value`` (like "1.0") as a literal of the kind of ``type_``: 1.0_dp, 1.0d0, 1.0."""
+        kind = type_.kind
+        if kind is None:
+            return value
+        if kind == "d":
+            return value.replace("e", "d") if "e" in value else value + "d0"
+        return f"{value}_{kind}"
+
+    @staticmethod
+    def call(function: str, arguments: list[str]) -> str:
+        return f"{function}({', '.join(arguments)})"

@@ -199,6 +199,13 @@ class Resolver:
         result = self.implicit_type(name)
         return result if result.is_known else self._unknown(name)
 
+    def is_variable(self, name: str) -> bool:
+        """True when ``name(...)`` is an array element or substring, not a function reference."""
+        found = self.lookup(name)
+        if not isinstance(found, Symbol) or found.is_function or found.is_intrinsic:
+            return False
+        return found.is_array or (found.type is not None and found.type.category is Category.CHARACTER)
+
     def component_type(self, base: NumType, component: str) -> NumType:
         if base.category is Category.COMPLEX and component in ("re", "im"):
             return NumType(Category.REAL, base.kind)

@@ -13,8 +13,8 @@ from . import chains
 RULES = {"chain": chains.plan}
 
 
-def plan(sites: list[Site], text: str, options, display) -> tuple[list[Edit], list[Finding]]:
-    """``display(span, changes)`` is the front end's one-line spelling of a piece of text."""
+def plan(sites: list[Site], text: str, options, spelling) -> tuple[list[Edit], list[Finding]]:
+    """``spelling`` is the front end's: one-line display of spans, literals of a kind, calls."""
     edits: list[Edit] = []
     findings: list[Finding] = []
     taken = Occupancy()
@@ -22,7 +22,7 @@ def plan(sites: list[Site], text: str, options, display) -> tuple[list[Edit], li
         if name not in options.rules:
             continue
         for site in sites:
-            proposed, noted = rule(site, text, options, display)
+            proposed, noted = rule(site, text, options, spelling)
             for edit in proposed:
                 if taken.fits(edit):
                     taken.take(edit)

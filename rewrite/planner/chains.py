@@ -63,7 +63,7 @@ def _has_floating_operation(operands: list[Node]) -> bool:
     return False
 
 
-def plan(site: Site, text: str, options, display) -> tuple[list[Edit], list[Finding]]:
+def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Finding]]:
     edits: list[Edit] = []
     findings: list[Finding] = []
     for root in site.roots:
@@ -73,7 +73,7 @@ def plan(site: Site, text: str, options, display) -> tuple[list[Edit], list[Find
                 continue
             unknown = [o for o in operands if o.type.category is Category.UNKNOWN]
             if unknown:
-                names = ", ".join(f"'{display(o.span, ())}'" for o in unknown[:3])
+                names = ", ".join(f"'{spelling.display(o.span)}'" for o in unknown[:3])
                 findings.append(Finding(Span(operands[0].span.start, operands[-1].span.end), RULE,
                                         f"unresolved chain not edited: the type of {names} is unknown"))
                 continue
@@ -81,16 +81,16 @@ def plan(site: Site, text: str, options, display) -> tuple[list[Edit], list[Find
                 continue
             if not _has_floating_operation(operands) or _order_free(operands, operators):
                 continue
-            edits.append(_pin_written_order(operands, display))
+            edits.append(_pin_written_order(operands, spelling))
     return edits, findings
 
 
-def _pin_written_order(operands: list[Node], display) -> Edit:
+def _pin_written_order(operands: list[Node], spelling) -> Edit:
     span = Span(operands[0].span.start, operands[-1].span.end)
     changes = [TextChange(span.start, span.start, "(" * (len(operands) - 2))]
     changes += [TextChange(o.span.end, o.span.end, ")") for o in operands[1:-1]]
-    before = display(span, ())
-    after = display(span, changes)
+    before = spelling.display(span)
+    after = spelling.display(span, changes)
     reason = (f"pins the written left-to-right order: {after}; unparenthesised, the compiler may "
               f"evaluate it in any mathematically equivalent order")
     return Edit(span, tuple(changes), RULE, BIT_FOR_BIT, reason, before, after)

@@ -68,6 +68,9 @@ class _AnyReal:
     def component_type(self, base, component):
         return UNKNOWN
 
+    def is_variable(self, name):
+        return False
+
 
 _leaves = st.sampled_from(["a", "b", "c", "d", "x1", "2.0", "1.5d0", "3"])
 
