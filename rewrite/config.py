@@ -19,7 +19,7 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover
     import tomli as tomllib
 
-ALL_RULES = ("chain",)
+ALL_RULES = ("chain", "power")
 
 
 class ConfigError(ValueError):
@@ -33,6 +33,8 @@ class Options:
     exclude: tuple[str, ...] = field(default=())
     effects: tuple[str, ...] = ("bit-for-bit", "answer-changing")  # which edits to propose
     module_path: tuple[str, ...] = field(default=())
+    power_threshold: int = 8  # larger integer exponents are reported, not expanded
+    fractional_powers: bool = False  # rewrite x**0.5, x**1.5 to sqrt forms
     source: str = ""  # where the options were read from, for messages
 
     def excluded(self, path: str) -> bool:
@@ -72,7 +74,7 @@ def find_config(start: Path) -> Path | None:
 
 def from_table(table: dict, source: str = "") -> Options:
     values = {key.replace("-", "_"): value for key, value in table.items()}
-    known = {"rules", "line_length", "exclude", "module_path"}
+    known = {"rules", "line_length", "exclude", "module_path", "power_threshold", "fractional_powers"}
     unknown = sorted(set(values) - known)
     if unknown:
         raise ConfigError(f"{source}: unknown option(s): {', '.join(unknown)}")
@@ -90,6 +92,15 @@ def from_table(table: dict, source: str = "") -> Options:
         options = replace(options, line_length=length)
     if "exclude" in values:
         options = replace(options, exclude=tuple(str(p) for p in values["exclude"]))
+    if "power_threshold" in values:
+        threshold = values["power_threshold"]
+        if not isinstance(threshold, int) or not 2 <= threshold <= 64:
+            raise ConfigError(f"{source}: power-threshold must be a whole number from 2 to 64")
+        options = replace(options, power_threshold=threshold)
+    if "fractional_powers" in values:
+        if not isinstance(values["fractional_powers"], bool):
+            raise ConfigError(f"{source}: fractional-powers must be true or false")
+        options = replace(options, fractional_powers=values["fractional_powers"])
     if "module_path" in values:
         base = Path(source).parent if source else Path.cwd()
         options = replace(options, module_path=tuple(str(base / p) for p in values["module_path"]))

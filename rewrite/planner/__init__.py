@@ -8,9 +8,9 @@ from __future__ import annotations
 
 from ..edits import Edit, Finding, Occupancy
 from ..ir import Site
-from . import chains
+from . import chains, powers
 
-RULES = {"chain": chains.plan}
+RULES = {"power": powers.plan, "chain": chains.plan}
 
 
 def plan(sites: list[Site], text: str, options, spelling) -> tuple[list[Edit], list[Finding]]:

@@ -2,13 +2,14 @@
 import pytest
 
 from rewrite.api import rewrite_text
+from rewrite.config import Options
 
 from conftest import module
 
 
 def _after(body, declarations=None):
     source = module(body) if declarations is None else module(body, declarations)
-    result = rewrite_text(source)
+    result = rewrite_text(source, options=Options(rules=("chain",)))
     assert result.problems == ()
     return [e.after for e in result.edits], result
 
