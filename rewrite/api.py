@@ -161,7 +161,7 @@ def rewrite_paths(paths: list[str], options: Options | None = None) -> list[Resu
             continue
         text = decode(data)
         try:
-            result = rewrite_text(text, language_of(path), options, str(path), modules)
+            result = rewrite_text(text, language_of(path), options.for_path(str(path)), str(path), modules)
         except RecursionError:
             result = Result(str(path), text, text, problems=(Problem(1, "expression nesting too deep"),))
         except Exception as error:  # a bug of ours must not stop the batch or touch the file

@@ -8,7 +8,7 @@ from pathlib import Path
 import click
 
 from . import __version__, api
-from .config import ConfigError, load
+from .config import ConfigError, load, with_samples
 from .edits import EFFECTS
 from .report import diff as diff_report
 from .report import json_report, text
@@ -19,11 +19,16 @@ _effect = click.option("--effect", type=click.Choice(EFFECTS), default=None,
 _config = click.option("--config", "config_path", type=click.Path(exists=True, dir_okay=False), default=None,
                        help="Read options from this TOML file instead of the nearest "
                             "samebits.toml / pyproject.toml [tool.samebits].")
+_chain_order = click.option("--chain-order", type=click.Choice(["written", "balanced", "accurate"]), default=None,
+                            help="Order for chains: written (default, bit-for-bit), balanced or accurate "
+                                 "(both answer-changing).")
+_samples = click.option("--samples", "samples_path", type=click.Path(exists=True, dir_okay=False), default=None,
+                        help="JSON file of value samples or ranges per variable, for --chain-order accurate.")
 _line_length = click.option("--line-length", type=click.IntRange(min=0), default=None,
                             help="Free-form line limit (default 132; 0: no limit).")
 
 
-def _options(paths, effect, config_path, line_length):
+def _options(paths, effect, config_path, line_length, chain_order=None, samples_path=None):
     try:
         options = load(Path(paths[0]) if paths else Path.cwd(), Path(config_path) if config_path else None)
     except ConfigError as error:
@@ -33,6 +38,14 @@ def _options(paths, effect, config_path, line_length):
         options = replace(options, effects=(effect,))
     if line_length is not None:
         options = replace(options, line_length=line_length)
+    if chain_order:
+        options = replace(options, chain_order=chain_order, chain_order_files=())
+    if samples_path:
+        try:
+            options = with_samples(options, Path(samples_path))
+        except ConfigError as error:
+            click.echo(f"samebits: {error}", err=True)
+            sys.exit(2)
     return options
 
 
@@ -69,11 +82,13 @@ def main():
 @_effect
 @_config
 @_line_length
+@_chain_order
+@_samples
 @click.option("--format", "output_format", type=click.Choice(["text", "json"]), default="text",
               help="text: one line per proposal and finding; json: one document for editors.")
-def check(paths, effect, config_path, line_length, output_format):
+def check(paths, effect, config_path, line_length, chain_order, samples_path, output_format):
     """List proposals as file:line:col: rule: effect: reason (exit 1 if any)."""
-    options = _options(paths, effect, config_path, line_length)
+    options = _options(paths, effect, config_path, line_length, chain_order, samples_path)
     results = api.rewrite_paths(list(paths), options)
     failed = _report_problems(results)
     if output_format == "json":
@@ -93,9 +108,11 @@ def check(paths, effect, config_path, line_length, output_format):
 @_effect
 @_config
 @_line_length
-def diff(paths, effect, config_path, line_length):
+@_chain_order
+@_samples
+def diff(paths, effect, config_path, line_length, chain_order, samples_path):
     """Print the proposals as a unified diff (for git apply / patch -p1)."""
-    options = _options(paths, effect, config_path, line_length)
+    options = _options(paths, effect, config_path, line_length, chain_order, samples_path)
     results = api.rewrite_paths(list(paths), options)
     failed = _report_problems(results)
     _write("".join(diff_report.result_diff(r) for r in results if r.changed))
@@ -107,9 +124,11 @@ def diff(paths, effect, config_path, line_length):
 @_effect
 @_config
 @_line_length
-def apply(paths, effect, config_path, line_length):
+@_chain_order
+@_samples
+def apply(paths, effect, config_path, line_length, chain_order, samples_path):
     """Rewrite the files in place (atomically; files with errors stay untouched)."""
-    options = _options(paths, effect, config_path, line_length)
+    options = _options(paths, effect, config_path, line_length, chain_order, samples_path)
     results = api.rewrite_paths(list(paths), options)
     failed = _report_problems(results)
     for result in results:

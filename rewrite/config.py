@@ -10,6 +10,7 @@ Keys (TOML, dashes or underscores):
 from __future__ import annotations
 
 import fnmatch
+import json
 import sys
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -35,6 +36,18 @@ class Options:
     module_path: tuple[str, ...] = field(default=())
     power_threshold: int = 8  # larger integer exponents are reported, not expanded
     fractional_powers: bool = False  # rewrite x**0.5, x**1.5 to sqrt forms
+    chain_order: str = "written"  # written | balanced | accurate
+    chain_order_files: tuple[tuple[str, str], ...] = ()  # (glob, order) per file, first match wins
+    samples: dict = field(default_factory=dict)  # operand text -> {"samples": [...]} or {"range": [lo, hi]}
+    samples_file: str = ""
+
+    def for_path(self, path: str) -> "Options":
+        """The options for one file: a per-file chain order replaces the run's."""
+        for pattern, order in self.chain_order_files:
+            if fnmatch.fnmatch(path, pattern) or fnmatch.fnmatch(Path(path).as_posix(), "*/" + pattern) \
+                    or fnmatch.fnmatch(Path(path).name, pattern):
+                return replace(self, chain_order=order)
+        return self
     source: str = ""  # where the options were read from, for messages
 
     def excluded(self, path: str) -> bool:
@@ -74,7 +87,8 @@ def find_config(start: Path) -> Path | None:
 
 def from_table(table: dict, source: str = "") -> Options:
     values = {key.replace("-", "_"): value for key, value in table.items()}
-    known = {"rules", "line_length", "exclude", "module_path", "power_threshold", "fractional_powers"}
+    known = {"rules", "line_length", "exclude", "module_path", "power_threshold", "fractional_powers",
+             "chain_order", "chain_order_files", "samples"}
     unknown = sorted(set(values) - known)
     if unknown:
         raise ConfigError(f"{source}: unknown option(s): {', '.join(unknown)}")
@@ -101,10 +115,50 @@ def from_table(table: dict, source: str = "") -> Options:
         if not isinstance(values["fractional_powers"], bool):
             raise ConfigError(f"{source}: fractional-powers must be true or false")
         options = replace(options, fractional_powers=values["fractional_powers"])
+    if "chain_order" in values:
+        options = replace(options, chain_order=_order(values["chain_order"], source))
+    if "chain_order_files" in values:
+        table = values["chain_order_files"]
+        if not isinstance(table, dict):
+            raise ConfigError(f"{source}: chain-order-files must be a table of glob = order")
+        options = replace(options, chain_order_files=tuple((str(k), _order(v, source)) for k, v in table.items()))
+    if "samples" in values:
+        base = Path(source).parent if source else Path.cwd()
+        options = with_samples(options, base / str(values["samples"]))
     if "module_path" in values:
         base = Path(source).parent if source else Path.cwd()
         options = replace(options, module_path=tuple(str(base / p) for p in values["module_path"]))
     return options
+
+
+CHAIN_ORDERS = ("written", "balanced", "accurate")
+
+
+def _order(value, source: str) -> str:
+    if value not in CHAIN_ORDERS:
+        raise ConfigError(f"{source}: chain order must be one of {', '.join(CHAIN_ORDERS)}, not {value!r}")
+    return value
+
+
+def with_samples(options: Options, path: Path) -> Options:
+    """Options with value samples read from a JSON file (format in docs/usage.md)."""
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError) as error:
+        raise ConfigError(f"{path}: cannot read value samples: {error}") from error
+    variables = data.get("variables") if isinstance(data, dict) else None
+    if not isinstance(variables, dict):
+        raise ConfigError(f"{path}: expected an object with a \"variables\" object")
+    samples = {}
+    for name, entry in variables.items():
+        key = "".join(str(name).lower().split())
+        if isinstance(entry, dict) and isinstance(entry.get("samples"), list) and entry["samples"]:
+            samples[key] = {"samples": [float(v) for v in entry["samples"]]}
+        elif isinstance(entry, dict) and isinstance(entry.get("range"), list) and len(entry["range"]) == 2:
+            samples[key] = {"range": [float(v) for v in entry["range"]]}
+        else:
+            raise ConfigError(f"{path}: variable {name!r} needs \"samples\": [...] or \"range\": [low, high]")
+    return replace(options, samples=samples, samples_file=str(path))
 
 
 def load(start: Path, config_path: Path | None = None) -> Options:
