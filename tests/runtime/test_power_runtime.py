@@ -179,13 +179,15 @@ def _to_int32(n64: np.ndarray, rng: np.random.Generator) -> np.ndarray:
 
 
 def _scaled(rng, count, exps, mant_bits, emin, emax, dtype):
-    """Values whose |n|-th power lands anywhere from below underflow to above overflow."""
+    """Values whose |n|-th power lands anywhere from below underflow to above overflow.
+
+    ``emin``/``emax``: exponents of the smallest subnormal and of the largest finite value.
+    """
     k = np.maximum(np.abs(exps), 1)
-    span = (emax - emin + 60) / k
-    e = np.floor(rng.uniform(-0.5, 0.5, count) * span + 0.5).astype(np.int64)
+    e = np.floor(rng.uniform(emin - 30, emax + 30, count) / k).astype(np.int64)
+    e = np.clip(e, emin, emax)
     mant = 1.0 + rng.integers(0, 2**mant_bits, count) / 2.0**mant_bits
     sign = np.where(rng.random(count) < 0.5, -1.0, 1.0)
-    e = np.clip(e, emin - mant_bits, emax)
     return (sign * np.ldexp(mant, e)).astype(dtype)
 
 
@@ -204,8 +206,8 @@ def batch(seed: int = 2024, count: int = 20000):
     kind = rng.integers(0, 3, rest)
     bits64 = rng.integers(0, 2**64, rest, dtype=np.uint64, endpoint=False).view(np.float64)
     bits32 = rng.integers(0, 2**32, rest, dtype=np.uint64).astype(np.uint32).view(np.float32)
-    sc64 = _scaled(rng, rest, n, 52, -1074, 1024, np.float64)
-    sc32 = _scaled(rng, rest, n, 23, -149, 128, np.float32)
+    sc64 = _scaled(rng, rest, n, 52, -1074, 1023, np.float64)
+    sc32 = _scaled(rng, rest, n, 23, -149, 127, np.float32)
     near64 = (1.0 + rng.integers(-2**12, 2**12, rest) * 2.0**-52) * np.where(rng.random(rest) < 0.5, -1, 1)
     near32 = (np.float32(1.0) + rng.integers(-2**6, 2**6, rest).astype(np.float32) * np.float32(2.0**-23)).astype(np.float32)
     x64.append(np.choose(kind, [bits64, sc64, near64]))
