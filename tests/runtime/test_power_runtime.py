@@ -362,7 +362,7 @@ def test_fortran_matches_reference_hypothesis(level, drivers, rows):
 # Literal exponents in the same compilation unit (inlined, constant-propagated)
 # --------------------------------------------------------------------------
 
-CONSTANT_EXPONENTS = [9, 10, 12, 13, 15, 16, 17, 23, 31, 32, 40, 100, 1000, -9, -13, -16, -1000,
+CONSTANT_EXPONENTS = [1, 2, 3, -1, 9, 10, 12, 13, 15, 16, 17, 23, 31, 32, 40, 100, 1000, -9, -13, -16, -1000,
                       INT32_MAX, INT32_MIN, INT64_MAX, INT64_MIN, 2**40 + 7]
 
 
