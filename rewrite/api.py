@@ -249,3 +249,20 @@ def write_result(result: Result) -> bool:
             os.unlink(temporary)
         raise
     return True
+
+
+def write_runtime(language: str, directory: Path) -> Path:
+    """Write the runtime module for ``language`` into ``directory`` (atomically)."""
+    from importlib import resources
+
+    if language != "fortran":
+        raise ValueError(f"no runtime for {language!r}")
+    data = resources.files("rewrite.runtime").joinpath("fortran/samebits_runtime.f90").read_bytes()
+    directory.mkdir(parents=True, exist_ok=True)
+    target = directory / "samebits_runtime.f90"
+    descriptor, temporary = tempfile.mkstemp(prefix=".samebits_runtime.", dir=directory)
+    with os.fdopen(descriptor, "wb") as handle:
+        handle.write(data)
+    os.chmod(temporary, 0o644)
+    os.replace(temporary, target)
+    return target

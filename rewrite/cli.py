@@ -146,5 +146,23 @@ def apply(paths, effect, config_path, line_length, chain_order, samples_path):
     sys.exit(2 if failed else 0)
 
 
+@main.group()
+def runtime():
+    """Write out the runtime that rewritten code calls."""
+
+
+@runtime.command("fortran")
+@click.option("--out", "out_dir", required=True, type=click.Path(file_okay=False),
+              help="Directory to write samebits_runtime.f90 into (created if missing).")
+def runtime_fortran(out_dir):
+    """Write the Fortran runtime module samebits_runtime.f90 (compile it without fast-math flags)."""
+    try:
+        written = api.write_runtime("fortran", Path(out_dir))
+    except OSError as error:
+        click.echo(f"samebits: {out_dir}: {error}", err=True)
+        sys.exit(2)
+    click.echo(str(written))
+
+
 if __name__ == "__main__":  # pragma: no cover
     main()

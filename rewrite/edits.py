@@ -34,6 +34,7 @@ class Edit:
     after: str = ""
     line: int = 0
     column: int = 0
+    requires: tuple[str, ...] = ()  # runtime functions the new text calls
 
 
 @dataclass(frozen=True)

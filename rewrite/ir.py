@@ -125,6 +125,18 @@ class Unary(Node):
 
 
 @dataclass(frozen=True)
+class ImportAnchor:
+    """Where the enclosing scoping unit can take a new import line, and what it imports
+    from the runtime already ("*" for everything)."""
+
+    unit: str  # identifies the unit, for adding an import once
+    offset: int  # start of the line the import goes before
+    indent: str
+    newline: str
+    runtime_names: frozenset[str] = frozenset()
+
+
+@dataclass(frozen=True)
 class Site:
     """One statement's expressions, as the planner sees them."""
 
@@ -132,6 +144,7 @@ class Site:
     line: int
     roots: tuple[Node, ...]
     context: str
+    anchor: ImportAnchor | None = None
 
 
 def walk(node: Node):

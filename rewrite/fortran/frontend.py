@@ -10,7 +10,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 from ..edits import Finding, Problem
-from ..ir import UNKNOWN, Node, Site, Span
+from ..ir import UNKNOWN, ImportAnchor, Node, Site, Span
 from . import intrinsics
 from .declarations import (
     PROCEDURE_PREFIXES, declaration, entities, find_top_level, implicit_mapping, matching,
@@ -19,9 +19,10 @@ from .declarations import (
 from .expr import ExpressionParser, ParseError, Unsupported
 from .lexer import LexError, Token, tokenize
 from .parse import is_valid_statement
-from .source import Statement, logical_statements
-from .symbols import DerivedType, Program, Resolver, Scope, Symbol, Use
+from .source import Statement, line_starts, logical_statements
+from .symbols import RUNTIME_MODULE, DerivedType, Program, Resolver, Scope, Symbol, Use
 
+_IMPORTING_UNITS = {"program", "module", "submodule", "subroutine", "function"}
 _UNIT_KINDS = {"program", "module", "submodule", "subroutine", "function", "blockdata"}
 _SPEC_ONLY = {
     "dimension", "parameter", "external", "intrinsic", "common", "allocatable", "pointer", "target",
@@ -163,9 +164,11 @@ def _unit_header(tokens: list[Token]) -> _UnitHeader | None:
 class _Builder:
     """Pass 1: scopes and declarations."""
 
-    def __init__(self, program: Program, result: FrontEndResult):
+    def __init__(self, program: Program, result: FrontEndResult, text: str = ""):
         self.program = program
         self.result = result
+        self.text = text
+        self.line_starts = line_starts(text)
         self.stack: list[Scope] = [program.file]
         self.select_is_type: list[bool] = []
         self.in_type_contains = False
@@ -201,6 +204,7 @@ class _Builder:
         header = _unit_header(tokens)
         if header is not None:
             self.begin_unit(header)
+            self.anchor_after(self.scope, statement, own_indent=False)
             return
         if word == "contains":
             if scope.kind == "type":
@@ -221,6 +225,7 @@ class _Builder:
             if parsed:
                 module, only, renames = parsed
                 scope.uses.append(Use(module, only, renames))
+                self.anchor_after(scope, statement, own_indent=True)
             return
         if word == "implicit":
             try:
@@ -263,6 +268,18 @@ class _Builder:
         self.executable(statement, tokens)
 
     # -- structure -------------------------------------------------------------------------
+    def anchor_after(self, scope: Scope, statement: Statement, own_indent: bool) -> None:
+        """Record where a new USE line can go: the line after this statement."""
+        if scope.kind not in _IMPORTING_UNITS or statement.end_line >= len(self.line_starts):
+            return
+        if scope.import_at is not None and not own_indent:
+            return
+        start = self.line_starts[statement.line - 1]
+        line = self.text[start:self.line_starts[statement.line] if statement.line < len(self.line_starts) else None]
+        indent = line[: len(line) - len(line.lstrip(" \t"))]
+        scope.import_at = self.line_starts[statement.end_line]
+        scope.indent = indent if own_indent else indent + "  "
+
     def begin_unit(self, header: _UnitHeader) -> None:
         parent = self.scope
         kind = header.kind
@@ -639,7 +656,25 @@ def _site(pending: _Pending, program: Program, result: FrontEndResult, text: str
                                        "statement left as it is: a preprocessor line interrupts it"))
         return
     if roots:
-        result.sites.append(Site(span, statement.line, tuple(roots), context))
+        result.sites.append(Site(span, statement.line, tuple(roots), context, _anchor(pending.scope, text)))
+
+
+def _anchor(scope: Scope, text: str) -> ImportAnchor | None:
+    unit = scope
+    while unit is not None and unit.kind not in _IMPORTING_UNITS:
+        unit = unit.parent
+    if unit is None or unit.import_at is None:
+        return None
+    names: set[str] = set()
+    host: Scope | None = scope
+    while host is not None:
+        for use in host.uses:
+            if use.module == RUNTIME_MODULE:
+                names |= {"*"} if use.only is None else set(use.only)
+        host = host.parent
+    newline = "\r\n" if text[max(unit.import_at - 2, 0):unit.import_at] == "\r\n" else "\n"
+    return ImportAnchor(f"{unit.kind}:{unit.name}:{unit.import_at}", unit.import_at, unit.indent, newline,
+                        frozenset(names))
 
 
 def analyse(text: str, known_modules: dict[str, Scope] | None = None) -> FrontEndResult:
@@ -648,7 +683,7 @@ def analyse(text: str, known_modules: dict[str, Scope] | None = None) -> FrontEn
     statements, source_problems = logical_statements(text)
     result.problems.extend(Problem(p.line, p.message) for p in source_problems)
     program = Program(known_modules)
-    builder = _Builder(program, result)
+    builder = _Builder(program, result, text)
     for statement in statements:
         try:
             tokens = tokenize(statement.text)

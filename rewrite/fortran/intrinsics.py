@@ -12,7 +12,8 @@ merge erf erfc erfc_scaled gamma log_gamma hypot bessel_j0 bessel_j1 bessel_jn b
 bessel_yn conjg norm2 iand ior ieor not ishft ishftc ibset ibclr ibits shifta shiftl shiftr
 sind cosd tand asind acosd atand atan2d cotan cotand dsqrt dexp dlog dlog10 dsin dcos dtan dabs
 datan datan2 dsinh dcosh dtanh dmod dsign dmax1 dmin1 dint dnint alog alog10 amax1 amin1 amod
-cabs csqrt cexp clog csin ccos iabs isign idim max0 min0""".split())
+cabs csqrt cexp clog csin ccos iabs isign idim max0 min0
+sb_power""".split())  # sb_power: samebits_runtime, same type as its base
 _DOUBLE_SPECIFIC = set("dsqrt dexp dlog dlog10 dsin dcos dtan dabs datan datan2 dsinh dcosh dtanh dmod "
                        "dsign dmax1 dmin1 dint dnint".split())
 _REAL_SPECIFIC = set("alog alog10 amax1 amin1 amod".split())

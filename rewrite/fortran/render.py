@@ -153,3 +153,7 @@ class FortranSpelling:
     @staticmethod
     def call(function: str, arguments: list[str]) -> str:
         return f"{function}({', '.join(arguments)})"
+
+    @staticmethod
+    def import_line(names: list[str], indent: str, newline: str) -> str:
+        return f"{indent}use samebits_runtime, only: {', '.join(names)}{newline}"

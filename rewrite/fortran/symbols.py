@@ -53,6 +53,8 @@ class Scope:
     implicit: dict[str, NumType] | None = None  # None: inherit (or default at top)
     opaque: bool = False  # INCLUDE or unknown imports: undeclared names are unknown
     result_name: str | None = None
+    import_at: int | None = None  # offset of the line after the unit header or its last USE
+    indent: str = ""
     seen_executable: bool = False
 
     def symbol(self, name: str) -> Symbol:
@@ -91,11 +93,12 @@ class Program:
 
 
 _MISSING = object()
+RUNTIME_MODULE = "samebits_runtime"  # ours: its functions are typed by intrinsics.result_type
 
 # intrinsic modules export named constants and procedures only: a USE of them hides nothing
 # that typing needs, so names go on to the host and to implicit typing
 INTRINSIC_MODULES = {"iso_fortran_env", "iso_c_binding", "ieee_arithmetic", "ieee_exceptions",
-                     "ieee_features", "omp_lib", "omp_lib_kinds"}
+                     "ieee_features", "omp_lib", "omp_lib_kinds", RUNTIME_MODULE}
 
 
 def _host(scope: Scope) -> Scope | None:

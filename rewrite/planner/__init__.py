@@ -6,8 +6,8 @@ together.
 """
 from __future__ import annotations
 
-from ..edits import Edit, Finding, Occupancy
-from ..ir import Site
+from ..edits import ANSWER_CHANGING, Edit, Finding, Occupancy, TextChange
+from ..ir import Site, Span
 from . import chains, powers
 
 RULES = {"power": powers.plan, "chain": chains.plan}
@@ -30,4 +30,28 @@ def plan(sites: list[Site], text: str, options, spelling) -> tuple[list[Edit], l
                 else:
                     findings.append(Finding(edit.span, edit.rule, "left as it is: overlaps another edit"))
             findings.extend(noted)
-    return edits, findings
+    return edits + _imports(sites, edits, spelling), findings
+
+
+def _imports(sites: list[Site], edits: list[Edit], spelling) -> list[Edit]:
+    """One import edit per scoping unit for the runtime functions its edits call."""
+    needed: dict[str, tuple] = {}
+    for site in sites:
+        anchor = site.anchor
+        if anchor is None:
+            continue
+        names = {name for e in edits if e.requires and site.span.start <= e.span.start < site.span.end
+                 for name in e.requires}
+        names -= anchor.runtime_names
+        if names and "*" not in anchor.runtime_names:
+            current = needed.get(anchor.unit, (anchor, set()))
+            needed[anchor.unit] = (anchor, current[1] | names)
+    imports = []
+    for anchor, names in needed.values():
+        line = spelling.import_line(sorted(names), anchor.indent, anchor.newline)
+        imports.append(Edit(Span(anchor.offset, anchor.offset), (TextChange(anchor.offset, anchor.offset, line),),
+                            "power", ANSWER_CHANGING,
+                            f"imports {', '.join(sorted(names))} from the samebits runtime module, which the "
+                            f"answer-changing edits of this unit call (write it out with: samebits runtime "
+                            f"fortran --out DIR)", "", line.strip()))
+    return imports

@@ -142,13 +142,15 @@ def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Fin
                 continue
             if abs(n) < 2:
                 continue
-            if abs(n) > options.power_threshold:
-                findings.append(Finding(node.span, RULE, f"{original}: exponent above power-threshold "
-                                        f"({options.power_threshold}): not rewritten; builds disagree on it"))
-                continue
-            if not _plain(base):
-                findings.append(Finding(node.span, RULE, f"{original}: the base is not a plain variable or "
-                                        "array element and is not duplicated: not rewritten"))
+            if abs(n) > options.power_threshold or not _plain(base):
+                why = (f"exponent above power-threshold ({options.power_threshold})" if _plain(base)
+                       else "the base is not a plain variable or array element, so it is not written twice")
+                edit = _runtime_call(node, n, site, spelling, original, why)
+                if edit is None:
+                    findings.append(Finding(node.span, RULE, f"{original}: {why}; no place for the runtime "
+                                            "import in this unit: not rewritten"))
+                else:
+                    edits.append(edit)
                 continue
             if spelling.spans_lines(node.span):
                 findings.append(Finding(node.span, RULE, f"{original}: continued over lines: not rewritten"))
@@ -172,6 +174,20 @@ def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Fin
             edits.append(Edit(node.span, (TextChange(node.span.start, node.span.end, replacement),), RULE,
                               ANSWER_CHANGING, reason, original, replacement))
     return edits, findings
+
+
+RUNTIME_POWER = "sb_power"
+
+
+def _runtime_call(node, n, site, spelling, original, why):
+    """x**n as a call of the runtime's sb_power (binary exponentiation in one fixed order)."""
+    if site.anchor is None or spelling.spans_lines(node.span):
+        return None
+    call = spelling.call(RUNTIME_POWER, [spelling.display(node.left.span), str(n)])
+    reason = (f"{original} -> {call}: {why}; the runtime computes it by binary exponentiation in one fixed "
+              f"order (docs/runtime.md); builds disagree on the original, so the bits can change")
+    return Edit(node.span, (TextChange(node.span.start, node.span.end, call),), RULE, ANSWER_CHANGING, reason,
+                original, call, requires=(RUNTIME_POWER,))
 
 
 def _square_root(node, parent, fraction, options, spelling, original):

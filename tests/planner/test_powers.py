@@ -76,11 +76,22 @@ def test_reciprocal_literal_matches_the_kind(declaration, one):
     assert _after(result) == [f"{one}/(x*x)"]
 
 
-def test_left_alone_or_reported():
+def test_left_alone_reported_or_sent_to_the_runtime():
     result = _rewrite("n = i**2\ny = sqrt(x)**2\ny = x**9\ny = x**n\ny = x**1", "real(dp) :: x, y\n    integer :: i, n")
-    assert result.edits == ()
-    messages = " ".join(f.message for f in result.findings)
-    assert "not a plain variable" in messages and "above power-threshold (8)" in messages
+    assert [(e.before, e.after) for e in result.edits] == [
+        ("", "use samebits_runtime, only: sb_power"), ("sqrt(x)**2", "sb_power(sqrt(x), 2)"),
+        ("x**9", "sb_power(x, 9)")]
+    assert all(e.effect == "answer-changing" for e in result.edits)
+    assert "not a plain variable" in result.edits[1].reason and "above power-threshold (8)" in result.edits[2].reason
+    assert result.text.count("use samebits_runtime") == 1
+    assert rewrite_text(result.text, options=POWERS).edits == ()
+
+
+def test_runtime_import_is_not_repeated_when_present():
+    source = module("y = x**12", "real(dp) :: x, y").replace(
+        "  subroutine work()\n", "  subroutine work()\n    use samebits_runtime\n")
+    result = rewrite_text(source, options=POWERS)
+    assert [e.after for e in result.edits] == ["sb_power(x, 12)"]
 
 
 def test_threshold_is_configurable():
@@ -99,7 +110,7 @@ def test_real_exponents():
 
 def test_array_elements_are_plain_calls_are_not():
     result = _rewrite("y = v(i+1)**3 + f(x)**3", "real(dp) :: x, y, v(5)\n    integer :: i\n    real(dp), external :: f")
-    assert _after(result) == ["v(i+1)*v(i+1)*v(i+1)"]
+    assert _after(result) == ["use samebits_runtime, only: sb_power", "v(i+1)*v(i+1)*v(i+1)", "sb_power(f(x), 3)"]
 
 
 def test_powers_and_chains_together_reach_a_fixed_point():
