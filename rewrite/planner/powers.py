@@ -183,7 +183,10 @@ def _runtime_call(node, n, site, spelling, original, why):
     """x**n as a call of the runtime's sb_power (binary exponentiation in one fixed order)."""
     if site.anchor is None or spelling.spans_lines(node.span):
         return None
-    call = spelling.call(RUNTIME_POWER, [spelling.display(node.left.span), str(n)])
+    base = spelling.display(node.left.span)
+    if node.left.parenthesised and base.startswith("(") and base.endswith(")"):
+        base = base[1:-1]  # the call's own parentheses group it
+    call = spelling.call(RUNTIME_POWER, [base, str(n)])
     reason = (f"{original} -> {call}: {why}; the runtime computes it by binary exponentiation in one fixed "
               f"order (docs/runtime.md); builds disagree on the original, so the bits can change")
     return Edit(node.span, (TextChange(node.span.start, node.span.end, call),), RULE, ANSWER_CHANGING, reason,

@@ -93,7 +93,6 @@ contains
     r = 1.0_real64
     if (n == 0_int64) return
     base = x
-    if (n < 0_int64) base = 1.0_real64 / x
     m = n
     started = .false.
     do
@@ -109,6 +108,7 @@ contains
       if (m == 0_int64) exit
       base = base * base
     end do
+    if (n < 0_int64) r = 1.0_real64 / r
   end function power_r64_i64
 
   pure elemental function power_r32_i64(x, n) result(r)
