@@ -98,3 +98,31 @@ def test_modules_are_found_beside_a_single_file(tmp_path):
     (tmp_path / "samebits.toml").write_text('module-path = ["lib"]\n')
     run = _run("check", "use_it.f90", cwd=tmp_path)
     assert run.returncode == 1 and "bit-for-bit" in run.stdout
+
+
+def test_chain_order_per_file_from_config(tmp_path):
+    body = "module m\n  implicit none\ncontains\n  subroutine s(a, b, c, d)\n    real :: a, b, c, d\n" \
+           "    a = a + b + c + d\n  end subroutine\nend module\n"
+    (tmp_path / "legacy").mkdir()
+    (tmp_path / "legacy" / "old.f90").write_text(body)
+    (tmp_path / "new.f90").write_text(body)
+    (tmp_path / "samebits.toml").write_text('chain-order-files = { "legacy/*.f90" = "balanced" }\n')
+    run = _run("check", ".", cwd=tmp_path)
+    assert "legacy/old.f90:6:9: chain: answer-changing: a + b + c + d -> (a + b) + (c + d)" in run.stdout
+    assert "new.f90:6:9: chain: bit-for-bit" in run.stdout
+    diff = _run("diff", ".", cwd=tmp_path)
+    assert "# ANSWER-CHANGING legacy/old.f90:6: chain:" in diff.stdout
+    only = _run("check", "--effect", "bit-for-bit", ".", cwd=tmp_path)
+    assert "legacy/old.f90" not in only.stdout and "new.f90:6:9" in only.stdout
+    (tmp_path / "samebits.toml").write_text('chain-order = "fastest"\n')
+    assert _run("check", ".", cwd=tmp_path).returncode == 2
+
+
+def test_runtime_command_writes_a_module_that_compiles(tmp_path):
+    run = _run("runtime", "fortran", "--out", "rt", cwd=tmp_path)
+    assert run.returncode == 0 and (tmp_path / "rt" / "samebits_runtime.f90").is_file()
+    if shutil.which("gfortran"):
+        # outside check: gfortran accepts it as standard Fortran 2008 with warnings as errors
+        compiled = subprocess.run(["gfortran", "-std=f2008", "-Wall", "-Werror", "-c", "samebits_runtime.f90"],
+                                  cwd=tmp_path / "rt", capture_output=True, text=True)
+        assert compiled.returncode == 0, compiled.stderr
