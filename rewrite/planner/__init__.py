@@ -6,6 +6,8 @@ together.
 """
 from __future__ import annotations
 
+import bisect
+
 from ..edits import ANSWER_CHANGING, Edit, Finding, Occupancy, TextChange
 from ..ir import Site, Span
 from . import chains, powers
@@ -36,13 +38,17 @@ def plan(sites: list[Site], text: str, options, spelling) -> tuple[list[Edit], l
 def _imports(sites: list[Site], edits: list[Edit], spelling) -> list[Edit]:
     """One import edit per scoping unit for the runtime functions its edits call."""
     needed: dict[str, tuple] = {}
+    calling = sorted((e for e in edits if e.requires), key=lambda e: e.span.start)
+    if not calling:
+        return []
+    starts = [e.span.start for e in calling]
     for site in sites:
         anchor = site.anchor
         if anchor is None:
             continue
-        names = {name for e in edits if e.requires and site.span.start <= e.span.start < site.span.end
-                 for name in e.requires}
-        names -= anchor.runtime_names
+        low = bisect.bisect_left(starts, site.span.start)
+        high = bisect.bisect_left(starts, site.span.end)
+        names = {name for e in calling[low:high] for name in e.requires} - anchor.runtime_names
         if names and "*" not in anchor.runtime_names:
             current = needed.get(anchor.unit, (anchor, set()))
             needed[anchor.unit] = (anchor, current[1] | names)
