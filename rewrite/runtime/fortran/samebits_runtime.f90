@@ -65,7 +65,8 @@
 ! On 32-bit x86 use SSE arithmetic (-msse2 -mfpmath=sse): x87 excess
 ! precision would change the bits.  Note also that linking a program with
 ! -ffast-math / -Ofast makes GCC flush subnormal numbers to zero at start-up,
-! which changes results for every code, this module included.
+! which changes results for every code, this module included (a later
+! -fno-fast-math on the link line does not undo that).
 !
 ! Standard Fortran 2008; compiles with
 !   gfortran -std=f2008 -Wall -Wextra -Werror -c samebits_runtime.f90
