@@ -169,8 +169,8 @@ def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Fin
             written = "a real literal exponent, " if real_written else ""
             reason = (f"{original} -> {replacement}: {_NAMES.get(abs(n), 'repeated squaring')}"
                       f"{' (reciprocal)' if n < 0 else ''}, {written}one fixed grouping for every build; "
-                      f"builds disagree on the original (gfortran groups x**n differently at -O0 and -O2, "
-                      f"pow differs from both), so the bits can change")
+                      f"how x**n is computed is left to the processor (gfortran groups x**5 and x**6 "
+                      f"differently at -O0 and -O2, pow differs from products), so the bits can change")
             edits.append(Edit(node.span, (TextChange(node.span.start, node.span.end, replacement),), RULE,
                               ANSWER_CHANGING, reason, original, replacement))
     return edits, findings
@@ -188,7 +188,7 @@ def _runtime_call(node, n, site, spelling, original, why):
         base = base[1:-1]  # the call's own parentheses group it
     call = spelling.call(RUNTIME_POWER, [base, str(n)])
     reason = (f"{original} -> {call}: {why}; the runtime computes it by binary exponentiation in one fixed "
-              f"order (docs/runtime.md); builds disagree on the original, so the bits can change")
+              f"order (docs/runtime.md); how x**n is computed is left to the processor, so the bits can change")
     return Edit(node.span, (TextChange(node.span.start, node.span.end, call),), RULE, ANSWER_CHANGING, reason,
                 original, call, requires=(RUNTIME_POWER,))
 
