@@ -91,13 +91,17 @@ class Node:
 class Operand(Node):
     """A primary. ``form`` says which: "name" (a variable), "element" (array element or
     component of variables, no call), "call" (function reference), "literal", "constructor",
-    "section" (a subscript triplet) or "other". ``key`` is its normalised source text (used to
+    "section" (a subscript triplet) or "other". A call of a standard function that the code does
+    not shadow (Fortran intrinsic ``sum``; later ``numpy.sum``) names it in ``function``. ``key`` is its normalised source text (used to
     tell identical operands apart); ``parts`` are the expressions nested inside it (arguments,
     subscripts)."""
 
     key: str = ""
     parts: tuple[Node, ...] = field(default=())
     form: str = "other"
+    function: str | None = None  # for a call of a standard function (not shadowed): its name
+    function_span: Span | None = None  # where that name is written
+    keywords: tuple[str | None, ...] = ()  # the keyword of each argument in ``parts`` (None: positional)
 
     def children(self) -> tuple[Node, ...]:
         return self.parts

@@ -46,6 +46,8 @@ class Resolver(Protocol):
 
     def is_variable(self, name: str) -> bool: ...
 
+    def intrinsic_name(self, name: str) -> str | None: ...
+
 
 def literal_type(token: Token) -> NumType:
     text = token.lower
@@ -254,13 +256,17 @@ class ExpressionParser:
         name = self.peek().lower
         self.pos += 1
         parts: list[Node] = []
+        keywords: list[str | None] = []
         form = "name"
+        function = None
         if self.at("("):
             self.pos += 1
             arguments = self._section_list(")")
             parts.extend(a.value for a in arguments if a.value is not None)
+            keywords.extend(a.keyword for a in arguments if a.value is not None)
             type_ = self.resolver.reference_type(name, arguments)
             form = "element" if self.resolver.is_variable(name) else "call"
+            function = self.resolver.intrinsic_name(name) if form == "call" else None
         else:
             type_ = self.resolver.name_type(name)
         while True:
@@ -281,8 +287,11 @@ class ExpressionParser:
                 raise Unsupported("coarray image selectors are not analysed", self.pos)
             else:
                 break
+        if self.pos - 1 > first and self.tokens[self.pos - 1].kind != ")" or "%" in self.key(first, self.pos - 1):
+            function = None  # a component or a substring follows: not a plain call
         return Operand(self.span(first, self.pos - 1), type_, False, self.key(first, self.pos - 1), tuple(parts),
-                       form)
+                       form, function, self.span(first, first) if function else None,
+                       tuple(keywords) if function else ())
 
     def _section_list(self, closing: str) -> list[Argument]:
         """Arguments or section subscripts up to the closing token (consumed)."""

@@ -13,7 +13,7 @@ bessel_yn conjg norm2 iand ior ieor not ishft ishftc ibset ibclr ibits shifta sh
 sind cosd tand asind acosd atand atan2d cotan cotand dsqrt dexp dlog dlog10 dsin dcos dtan dabs
 datan datan2 dsinh dcosh dtanh dmod dsign dmax1 dmin1 dint dnint alog alog10 amax1 amin1 amod
 cabs csqrt cexp clog csin ccos iabs isign idim max0 min0
-sb_power""".split())  # sb_power: samebits_runtime, same type as its base
+sb_power exact_sum""".split())  # sb_power, exact_sum: samebits_runtime, same type as their first argument
 _DOUBLE_SPECIFIC = set("dsqrt dexp dlog dlog10 dsin dcos dtan dabs datan datan2 dsinh dcosh dtanh dmod "
                        "dsign dmax1 dmin1 dint dnint".split())
 _REAL_SPECIFIC = set("alog alog10 amax1 amin1 amod".split())
@@ -51,7 +51,7 @@ def result_type(name: str, arguments: list[Argument]) -> NumType | None:
         return NumType(Category.REAL)
     if name in ("abs", "cabs") and first.category is Category.COMPLEX:
         return NumType(Category.REAL, first.kind)
-    if name in ("max", "min", "dot_product", "matmul"):
+    if name in ("max", "min", "dot_product", "matmul", "exact_dot"):
         result = first
         for value in values[1:]:
             if name in ("max", "min") and value.type.category != first.category and value.type.is_known \

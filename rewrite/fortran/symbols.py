@@ -209,6 +209,18 @@ class Resolver:
             return False
         return found.is_array or (found.type is not None and found.type.category is Category.CHARACTER)
 
+    def intrinsic_name(self, name: str) -> str | None:
+        """``name`` when a reference to it here means the intrinsic (nothing shadows it)."""
+        found = self.lookup(name)
+        if found is _MISSING:
+            return None
+        if found is None:
+            if name in self.program.procedures:
+                return None
+        elif not found.is_intrinsic:
+            return None
+        return name if self.intrinsic_result(name, []) is not None else None
+
     def component_type(self, base: NumType, component: str) -> NumType:
         if base.category is Category.COMPLEX and component in ("re", "im"):
             return NumType(Category.REAL, base.kind)

@@ -10,9 +10,9 @@ import bisect
 
 from ..edits import ANSWER_CHANGING, Edit, Finding, Occupancy, TextChange
 from ..ir import Site, Span
-from . import chains, powers
+from . import chains, powers, reductions
 
-RULES = {"power": powers.plan, "chain": chains.plan}
+RULES = {"sum": reductions.plan, "power": powers.plan, "chain": chains.plan}
 
 
 def plan(sites: list[Site], text: str, options, spelling) -> tuple[list[Edit], list[Finding]]:
@@ -56,7 +56,7 @@ def _imports(sites: list[Site], edits: list[Edit], spelling) -> list[Edit]:
     for anchor, names in needed.values():
         line = spelling.import_line(sorted(names), anchor.indent, anchor.newline)
         imports.append(Edit(Span(anchor.offset, anchor.offset), (TextChange(anchor.offset, anchor.offset, line),),
-                            "power", ANSWER_CHANGING,
+                            "runtime", ANSWER_CHANGING,
                             f"imports {', '.join(sorted(names))} from the samebits runtime module, which the "
                             f"answer-changing edits of this unit call (write it out with: samebits runtime "
                             f"fortran --out DIR)", "", line.strip()))

@@ -72,6 +72,9 @@ class _AnyReal:
     def is_variable(self, name):
         return False
 
+    def intrinsic_name(self, name):
+        return None
+
 
 _leaves = st.sampled_from(["a", "b", "c", "d", "x1", "2.0", "1.5d0", "3"])
 
