@@ -102,6 +102,7 @@ class Operand(Node):
     function: str | None = None  # for a call of a standard function (not shadowed): its name
     function_span: Span | None = None  # where that name is written
     keywords: tuple[str | None, ...] = ()  # the keyword of each argument in ``parts`` (None: positional)
+    rank: int = 0  # of a whole array named by a "name" operand; 0: scalar or not known
 
     def children(self) -> tuple[Node, ...]:
         return self.parts

@@ -24,6 +24,13 @@ class TypeSpec:
 class Entity:
     name: str
     is_array: bool
+    rank: int = 0  # 0: scalar or not known
+
+
+def _rank(tokens: list[Token], open_index: int) -> int:
+    """Rank of the array specification in parentheses at ``open_index``."""
+    close = matching(tokens, open_index)
+    return len(split_top_level(tokens, open_index + 1, close))
 
 
 def matching(tokens: list[Token], index: int) -> int:
@@ -139,13 +146,15 @@ class Declaration:
     entities: tuple[Entity, ...]
 
 
-def entities(tokens: list[Token], start: int, end: int, array_by_default: bool = False) -> tuple[Entity, ...]:
+def entities(tokens: list[Token], start: int, end: int, array_by_default: bool = False,
+             default_rank: int = 0) -> tuple[Entity, ...]:
     found = []
     for begin, stop in split_top_level(tokens, start, end):
         if tokens[begin].kind != "name":
             continue
-        is_array = array_by_default or (begin + 1 < stop and tokens[begin + 1].kind == "(")
-        found.append(Entity(tokens[begin].lower, is_array))
+        own = begin + 1 < stop and tokens[begin + 1].kind == "("
+        rank = _rank(tokens, begin + 1) if own else (default_rank if array_by_default else 0)
+        found.append(Entity(tokens[begin].lower, array_by_default or own, rank))
     return tuple(found)
 
 
@@ -153,15 +162,18 @@ def declaration(tokens: list[Token], spec: TypeSpec) -> Declaration:
     """``type-spec [, attr]... [::] entity-list``."""
     position = spec.end
     attributes: list[str] = []
+    dimension_rank = 0
     colons = find_top_level(tokens, "::", position)
     if colons >= 0:
         for begin, stop in split_top_level(tokens, position, colons):
             if tokens[begin].kind == "name":
                 attributes.append(tokens[begin].lower)
+                if tokens[begin].lower == "dimension" and begin + 1 < stop and tokens[begin + 1].kind == "(":
+                    dimension_rank = _rank(tokens, begin + 1)
         position = colons + 1
     elif position < len(tokens) and tokens[position].kind == ",":
         position += 1
-    found = entities(tokens, position, len(tokens), "dimension" in attributes)
+    found = entities(tokens, position, len(tokens), "dimension" in attributes, dimension_rank)
     return Declaration(spec.type, tuple(attributes), found)
 
 

@@ -48,6 +48,8 @@ class Resolver(Protocol):
 
     def intrinsic_name(self, name: str) -> str | None: ...
 
+    def rank_of(self, name: str) -> int: ...
+
 
 def literal_type(token: Token) -> NumType:
     text = token.lower
@@ -289,9 +291,10 @@ class ExpressionParser:
                 break
         if self.pos - 1 > first and self.tokens[self.pos - 1].kind != ")" or "%" in self.key(first, self.pos - 1):
             function = None  # a component or a substring follows: not a plain call
+        rank = self.resolver.rank_of(name) if form == "name" else 0
         return Operand(self.span(first, self.pos - 1), type_, False, self.key(first, self.pos - 1), tuple(parts),
                        form, function, self.span(first, first) if function else None,
-                       tuple(keywords) if function else ())
+                       tuple(keywords) if function else (), rank)
 
     def _section_list(self, closing: str) -> list[Argument]:
         """Arguments or section subscripts up to the closing token (consumed)."""

@@ -403,6 +403,7 @@ class _Builder:
             symbol = self.scope.symbol(entity.name)
             symbol.type = found.type
             symbol.is_array = symbol.is_array or entity.is_array
+            symbol.rank = entity.rank or symbol.rank
             if "parameter" in found.attributes:
                 symbol.is_parameter = True
             if "external" in found.attributes:
@@ -417,6 +418,7 @@ class _Builder:
             for entity in entities(tokens, colons + 1 if colons >= 0 else 1, len(tokens)):
                 symbol = scope.symbol(entity.name)
                 symbol.is_array = symbol.is_array or entity.is_array
+                symbol.rank = entity.rank or symbol.rank
         elif word == "parameter" and len(tokens) > 1 and tokens[1].kind == "(":
             close = matching(tokens, 1)
             for begin, _stop in split_top_level(tokens, 2, close):

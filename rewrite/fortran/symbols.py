@@ -26,6 +26,7 @@ class Symbol:
     is_function: bool = False
     is_intrinsic: bool = False
     is_parameter: bool = False
+    rank: int = 0  # 0: scalar or not known
 
 
 @dataclass
@@ -208,6 +209,10 @@ class Resolver:
         if not isinstance(found, Symbol) or found.is_function or found.is_intrinsic:
             return False
         return found.is_array or (found.type is not None and found.type.category is Category.CHARACTER)
+
+    def rank_of(self, name: str) -> int:
+        found = self.lookup(name)
+        return found.rank if isinstance(found, Symbol) else 0
 
     def intrinsic_name(self, name: str) -> str | None:
         """``name`` when a reference to it here means the intrinsic (nothing shadows it)."""

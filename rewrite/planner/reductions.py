@@ -19,6 +19,14 @@ REPLACEMENTS = {
 }
 
 
+def _has_dim(node: Operand) -> bool:
+    """True when a sum call passes DIM (keyword, or an integer second positional argument)."""
+    if "dim" in node.keywords:
+        return True
+    positional = [part for part, keyword in zip(node.parts, node.keywords) if keyword is None]
+    return len(positional) >= 2 and positional[1].type.category is Category.INTEGER
+
+
 def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Finding]]:
     edits: list[Edit] = []
     findings: list[Finding] = []
@@ -38,6 +46,10 @@ def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Fin
             if not set(node.keywords) <= keywords:
                 findings.append(Finding(node.span, RULE, f"{spelling.display(node.span)}: unexpected argument "
                                         "keyword: not rewritten"))
+                continue
+            if node.function == "sum" and _has_dim(node) and getattr(node.parts[0], "rank", 0) not in (2, 3):
+                findings.append(Finding(node.span, RULE, f"{spelling.display(node.span)}: the runtime's exact_sum "
+                                        "takes dim for whole arrays of rank 2 and 3 only: not rewritten"))
                 continue
             if site.anchor is None or node.function_span is None:
                 findings.append(Finding(node.span, RULE, f"{spelling.display(node.span)}: no place for the "

@@ -75,6 +75,9 @@ class _AnyReal:
     def intrinsic_name(self, name):
         return None
 
+    def rank_of(self, name):
+        return 0
+
 
 _leaves = st.sampled_from(["a", "b", "c", "d", "x1", "2.0", "1.5d0", "3"])
 

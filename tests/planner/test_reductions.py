@@ -42,3 +42,10 @@ def test_shadowed_sum_is_left_alone():
     assert rewrite_text(source, options=SUMS).edits == ()
     through_use = ("subroutine s(v, x)\n  use stats, only: sum\n  real :: v(3), x\n  x = sum(v)\nend subroutine\n")
     assert rewrite_text(through_use, options=SUMS).edits == ()
+
+
+def test_dim_only_for_whole_arrays_of_rank_two_and_three():
+    result = _edits("y2 = sum(w, 2)\ny3 = sum(c, dim=3)\nx = sum(v, dim=1)\ny3 = sum(q, dim=1)\nx = sum(v, v > 0.0_dp)",
+                    "real(dp) :: x, v(5), w(3,3), c(2,2,2), y2(3), y3(2,2)\n    real(dp), dimension(2,2,2,2) :: q")
+    assert [e.after for e in result.edits][1:] == ["exact_sum(w, 2)", "exact_sum(c, dim=3)", "exact_sum(v, v > 0.0_dp)"]
+    assert sum("rank 2 and 3 only" in f.message for f in result.findings) == 2
