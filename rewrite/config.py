@@ -29,7 +29,7 @@ class ConfigError(ValueError):
 
 @dataclass(frozen=True)
 class Options:
-    rules: tuple[str, ...] = ("chain", "power")  # "sum" joins the defaults when its runtime lands
+    rules: tuple[str, ...] = ALL_RULES
     line_length: int = 132
     exclude: tuple[str, ...] = field(default=())
     effects: tuple[str, ...] = ("bit-for-bit", "answer-changing")  # which edits to propose
