@@ -28,6 +28,20 @@ _line_length = click.option("--line-length", type=click.IntRange(min=0), default
                             help="Free-form line limit (default 132; 0: no limit).")
 
 
+def _rewrite_options(command):
+    """The options every rewriting command takes."""
+    for option in reversed((_paths, _effect, _config, _line_length, _chain_order, _samples)):
+        command = option(command)
+    return command
+
+
+def _rewrite(paths, effect, config_path, line_length, chain_order, samples_path):
+    """Results for the paths under the merged options, with problems reported; (results, failed)."""
+    options = _options(paths, effect, config_path, line_length, chain_order, samples_path)
+    results = api.rewrite_paths(list(paths), options)
+    return results, _report_problems(results)
+
+
 def _options(paths, effect, config_path, line_length, chain_order=None, samples_path=None):
     try:
         options = load(Path(paths[0]) if paths else Path.cwd(), Path(config_path) if config_path else None)
@@ -78,19 +92,12 @@ def main():
 
 
 @main.command()
-@_paths
-@_effect
-@_config
-@_line_length
-@_chain_order
-@_samples
+@_rewrite_options
 @click.option("--format", "output_format", type=click.Choice(["text", "json"]), default="text",
               help="text: one line per proposal and finding; json: one document for editors.")
-def check(paths, effect, config_path, line_length, chain_order, samples_path, output_format):
+def check(output_format, **settings):
     """List proposals as file:line:col: rule: effect: reason (exit 1 if any)."""
-    options = _options(paths, effect, config_path, line_length, chain_order, samples_path)
-    results = api.rewrite_paths(list(paths), options)
-    failed = _report_problems(results)
+    results, failed = _rewrite(**settings)
     if output_format == "json":
         _write(json_report.report(results) + "\n")
     else:
@@ -104,33 +111,19 @@ def check(paths, effect, config_path, line_length, chain_order, samples_path, ou
 
 
 @main.command()
-@_paths
-@_effect
-@_config
-@_line_length
-@_chain_order
-@_samples
-def diff(paths, effect, config_path, line_length, chain_order, samples_path):
+@_rewrite_options
+def diff(**settings):
     """Print the proposals as a unified diff (for git apply / patch -p1)."""
-    options = _options(paths, effect, config_path, line_length, chain_order, samples_path)
-    results = api.rewrite_paths(list(paths), options)
-    failed = _report_problems(results)
+    results, failed = _rewrite(**settings)
     _write("".join(diff_report.result_diff(r) for r in results if r.changed))
     sys.exit(2 if failed else 0)
 
 
 @main.command()
-@_paths
-@_effect
-@_config
-@_line_length
-@_chain_order
-@_samples
-def apply(paths, effect, config_path, line_length, chain_order, samples_path):
+@_rewrite_options
+def apply(**settings):
     """Rewrite the files in place (atomically; files with errors stay untouched)."""
-    options = _options(paths, effect, config_path, line_length, chain_order, samples_path)
-    results = api.rewrite_paths(list(paths), options)
-    failed = _report_problems(results)
+    results, failed = _rewrite(**settings)
     for result in results:
         if not result.changed:
             continue
