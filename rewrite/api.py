@@ -21,6 +21,9 @@ from .config import DEFAULT, Options
 from .edits import Edit, Finding, Problem
 from .fortran import frontend
 from .fortran.render import FortranSpelling, render
+from .python import frontend as python_frontend
+from .python.render import PythonSpelling
+from .python.render import render as python_render
 from .fortran.source import FIXED_FORM_SUFFIXES, FREE_FORM_SUFFIXES, code_length, physical_lines
 
 
@@ -66,6 +69,8 @@ def _line_problems(text: str, options: Options) -> list[Problem]:
 def rewrite_text(text: str, language: str = "fortran", options: Options | None = None,
                  path: str = "<text>", known_modules: dict | None = None) -> Result:
     options = options or DEFAULT
+    if language == "python":
+        return _rewrite_python(text, options, path)
     if language != "fortran":
         raise ValueError(f"unknown language {language!r}")
     problems = _line_problems(text, options)
@@ -82,6 +87,23 @@ def rewrite_text(text: str, language: str = "fortran", options: Options | None =
         findings.append(Finding(edit.span, edit.rule, f"not edited: {edit.after} would not fit within "
                                                       f"{options.line_length} columns"))
     edits = [e for e in edits if e not in refused]
+    return _placed(path, text, new_text, edits, findings)
+
+
+def _rewrite_python(text: str, options: Options, path: str) -> Result:
+    analysed = python_frontend.analyse(text)
+    if analysed.problems:
+        return Result(path, text, text, problems=tuple(analysed.problems))
+    if analysed.skipped:
+        return Result(path, text, text)
+    edits, findings = planner.plan(analysed.sites, text, options, PythonSpelling(text))
+    edits = [e for e in edits if e.effect in options.effects]
+    edits = [e for e in edits if e.rule != "runtime" or any(other.requires for other in edits)]
+    return _placed(path, text, python_render(text, edits), edits, list(analysed.findings) + findings)
+
+
+def _placed(path: str, text: str, new_text: str, edits: list[Edit], findings: list[Finding]) -> Result:
+    """The result, with line and column on every edit and finding."""
     lines = _Lines(text)
     placed_edits = tuple(sorted((replace(e, line=lines.position(e.span.start)[0],
                                          column=lines.position(e.span.start)[1]) for e in edits),
@@ -112,9 +134,14 @@ def _read(path: Path) -> tuple[bytes | None, Problem | None]:
     return data, None
 
 
+PYTHON_SUFFIXES = (".py", ".pyi")
+
+
 def language_of(path: Path) -> str | None:
     if path.suffix in FREE_FORM_SUFFIXES:
         return "fortran"
+    if path.suffix == ".py":
+        return "python"
     return None
 
 
@@ -142,7 +169,7 @@ def collect(paths: list[str], options: Options) -> tuple[list[Path], list[Result
             elif path.suffix in FIXED_FORM_SUFFIXES:
                 skipped.append(Result(str(path), "", "", notice="fixed-form source is not supported yet: skipped"))
             else:
-                skipped.append(Result(str(path), "", "", notice="not a free-form Fortran file: skipped"))
+                skipped.append(Result(str(path), "", "", notice="not a free-form Fortran or a Python file: skipped"))
         else:
             skipped.append(Result(str(path), "", "", problems=(Problem(0, "no such file or directory"),)))
     return files, skipped
@@ -153,8 +180,9 @@ def rewrite_paths(paths: list[str], options: Options | None = None) -> list[Resu
     options = options or DEFAULT
     files, results = collect(paths, options)
     contents: list[tuple[Path, bytes | None, Problem | None]] = [(f, *_read(f)) for f in files]
-    texts = [decode(data) for _path, data, problem in contents if problem is None and data is not None]
-    modules = _batch_modules(texts, [path for path, _data, _problem in contents], options)
+    fortran = [(path, data) for path, data, problem in contents
+               if problem is None and data is not None and language_of(path) == "fortran"]
+    modules = _batch_modules([decode(data) for _path, data in fortran], [path for path, _data in fortran], options)
     for path, data, problem in contents:
         if problem is not None:
             results.append(Result(str(path), "", "", problems=(problem,), data=data))
@@ -198,11 +226,11 @@ def _batch_modules(texts: list[str], paths: list[Path], options: Options) -> dic
     seen = {path.resolve() for path in paths}
     candidates: list[Path] = []
     for directory in dict.fromkeys([path.parent for path in paths]):
-        candidates.extend(sorted(p for p in directory.iterdir() if language_of(p) and p.is_file()))
+        candidates.extend(sorted(p for p in directory.iterdir() if language_of(p) == "fortran" and p.is_file()))
     for directory in options.module_path:
         for root, dirs, names in os.walk(directory):
             dirs[:] = sorted(d for d in dirs if not d.startswith("."))
-            candidates.extend(Path(root) / n for n in sorted(names) if language_of(Path(root) / n))
+            candidates.extend(Path(root) / n for n in sorted(names) if language_of(Path(root) / n) == "fortran")
     for candidate in candidates:
         if not missing:
             break

@@ -20,7 +20,7 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover
     import tomli as tomllib
 
-ALL_RULES = ("chain", "power", "sum")
+ALL_RULES = ("chain", "power", "sum", "zero", "audit")
 
 
 class ConfigError(ValueError):

@@ -18,9 +18,14 @@ EFFECTS = (BIT_FOR_BIT, ANSWER_CHANGING)
 
 @dataclass(frozen=True)
 class TextChange:
+    """Replace ``start:end`` by ``text`` (an insertion when start == end). Insertions at one
+    offset land in the order of ``order``: a guard that wraps a single operand opens after (+1)
+    and closes before (-1) the parentheses of a chain that starts or ends with that operand."""
+
     start: int
     end: int
     text: str
+    order: int = 0
 
 
 @dataclass(frozen=True)
@@ -62,7 +67,7 @@ class OverlapError(ValueError):
 
 
 def _ordered(changes) -> list[TextChange]:
-    ordered = sorted(changes, key=lambda c: (c.start, c.end))
+    ordered = sorted(changes, key=lambda c: (c.start, c.end, c.order))
     for first, second in zip(ordered, ordered[1:]):
         if second.start < first.end:
             raise OverlapError(f"changes overlap at offset {second.start}")

@@ -92,7 +92,8 @@ class Operand(Node):
     """A primary. ``form`` says which: "name" (a variable), "element" (array element or
     component of variables, no call), "call" (function reference), "literal", "constructor",
     "section" (a subscript triplet) or "other". A call of a standard function that the code does
-    not shadow (Fortran intrinsic ``sum``; later ``numpy.sum``) names it in ``function``. ``key`` is its normalised source text (used to
+    not shadow names it in ``function`` with a language-neutral name (Fortran's ``sum``,
+    Python's ``np.sum`` as ``array_sum``; see the front ends). ``key`` is its normalised source text (used to
     tell identical operands apart); ``parts`` are the expressions nested inside it (arguments,
     subscripts)."""
 
@@ -103,6 +104,8 @@ class Operand(Node):
     function_span: Span | None = None  # where that name is written
     keywords: tuple[str | None, ...] = ()  # the keyword of each argument in ``parts`` (None: positional)
     rank: int = 0  # of a whole array named by a "name" operand; 0: scalar or not known
+    method: bool = False  # a method call (arr.sum()): parts[0] is the receiver, function_span runs
+    # from the receiver's end through the opening parenthesis of the arguments
 
     def children(self) -> tuple[Node, ...]:
         return self.parts

@@ -66,7 +66,7 @@ def render(text: str, edits: list[Edit], limit: int) -> tuple[str, list[Edit]]:
     refused: list[Edit] = []
     lines = physical_lines(text)
     while True:
-        changes = sorted((c for e in accepted for c in e.changes), key=lambda c: (c.start, c.end))
+        changes = sorted((c for e in accepted for c in e.changes), key=lambda c: (c.start, c.end, c.order))
         replacements: dict[int, str] = {}
         failed = None
         index = 0
@@ -80,7 +80,7 @@ def render(text: str, edits: list[Edit], limit: int) -> tuple[str, list[Edit]]:
             if not on_line:
                 continue
             edited = apply_changes(text[line.start:end],
-                                   [TextChange(c.start - line.start, c.end - line.start, c.text) for c in on_line])
+                                   [TextChange(c.start - line.start, c.end - line.start, c.text, c.order) for c in on_line])
             if limit and code_length(edited)[0] > limit:
                 try:
                     pieces = wrap_line(edited, limit)
@@ -110,7 +110,7 @@ def render(text: str, edits: list[Edit], limit: int) -> tuple[str, list[Edit]]:
 def display(text: str, span, changes) -> str:
     """One-line text of ``span`` with ``changes`` applied: comments, ``&`` continuation marks
     and line breaks removed, for reasons and reports."""
-    inside = [TextChange(c.start - span.start, c.end - span.start, c.text)
+    inside = [TextChange(c.start - span.start, c.end - span.start, c.text, c.order)
               for c in changes if span.start <= c.start and c.end <= span.end]
     edited = apply_changes(text[span.start:span.end], inside)
     parts = []
@@ -129,6 +129,13 @@ class FortranSpelling:
     """How the planner's edits are spelt in Fortran (the planner knows no syntax)."""
 
     language = "fortran"
+    sqrt = "sqrt"
+    runtime_functions = frozenset({"exact_sum", "exact_dot", "sb_power"})
+    guarded_functions = frozenset()  # signed-zero guards for Fortran: issue 6
+    sum_dim_ranks = (2, 3)  # exact_sum of samebits_runtime takes dim for whole arrays of these ranks
+    power_note = ("how x**n is computed is left to the processor (gfortran groups x**5 and x**6 differently "
+                  "at -O0 and -O2, pow differs from products), so the bits can change")
+    runtime_note = "from the samebits runtime module (write it out with: samebits runtime fortran --out DIR)"
 
     def __init__(self, text: str):
         self.text = text

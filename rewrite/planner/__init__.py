@@ -10,9 +10,10 @@ import bisect
 
 from ..edits import ANSWER_CHANGING, Edit, Finding, Occupancy, TextChange
 from ..ir import Site, Span
-from . import chains, powers, reductions
+from . import audit, chains, powers, reductions, zeros
 
-RULES = {"sum": reductions.plan, "power": powers.plan, "chain": chains.plan}
+RULES = {"sum": reductions.plan, "power": powers.plan, "chain": chains.plan, "zero": zeros.plan,
+         "audit": audit.plan}
 
 
 def plan(sites: list[Site], text: str, options, spelling) -> tuple[list[Edit], list[Finding]]:
@@ -57,7 +58,6 @@ def _imports(sites: list[Site], edits: list[Edit], spelling) -> list[Edit]:
         line = spelling.import_line(sorted(names), anchor.indent, anchor.newline)
         imports.append(Edit(Span(anchor.offset, anchor.offset), (TextChange(anchor.offset, anchor.offset, line),),
                             "runtime", ANSWER_CHANGING,
-                            f"imports {', '.join(sorted(names))} from the samebits runtime module, which the "
-                            f"answer-changing edits of this unit call (write it out with: samebits runtime "
-                            f"fortran --out DIR)", "", line.strip()))
+                            f"imports {', '.join(sorted(names))} {spelling.runtime_note}: the answer-changing "
+                            f"edits of this unit call it", "", line.strip()))
     return imports

@@ -147,8 +147,10 @@ def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Fin
                        else "the base is not a plain variable or array element, so it is not written twice")
                 edit = _runtime_call(node, n, site, spelling, original, why)
                 if edit is None:
-                    findings.append(Finding(node.span, RULE, f"{original}: {why}; no place for the runtime "
-                                            "import in this unit: not rewritten"))
+                    missing = ("the runtime has no power function for this language"
+                               if RUNTIME_POWER not in spelling.runtime_functions
+                               else "no place for the runtime import in this unit")
+                    findings.append(Finding(node.span, RULE, f"{original}: {why}; {missing}: not rewritten"))
                 else:
                     edits.append(edit)
                 continue
@@ -169,8 +171,7 @@ def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Fin
             written = "a real literal exponent, " if real_written else ""
             reason = (f"{original} -> {replacement}: {_NAMES.get(abs(n), 'repeated squaring')}"
                       f"{' (reciprocal)' if n < 0 else ''}, {written}one fixed grouping for every build; "
-                      f"how x**n is computed is left to the processor (gfortran groups x**5 and x**6 "
-                      f"differently at -O0 and -O2, pow differs from products), so the bits can change")
+                      f"{spelling.power_note}")
             edits.append(Edit(node.span, (TextChange(node.span.start, node.span.end, replacement),), RULE,
                               ANSWER_CHANGING, reason, original, replacement))
     return edits, findings
@@ -181,7 +182,7 @@ RUNTIME_POWER = "sb_power"
 
 def _runtime_call(node, n, site, spelling, original, why):
     """x**n as a call of the runtime's sb_power (binary exponentiation in one fixed order)."""
-    if site.anchor is None or spelling.spans_lines(node.span):
+    if site.anchor is None or spelling.spans_lines(node.span) or RUNTIME_POWER not in spelling.runtime_functions:
         return None
     base = spelling.display(node.left.span)
     if node.left.parenthesised and base.startswith("(") and base.endswith(")"):
@@ -197,14 +198,15 @@ def _square_root(node, parent, fraction, options, spelling, original):
     base = node.left
     note = ("they differ from pow for x = -0.0 (pow gives +0, sqrt -0) and x = -inf (pow +inf, sqrt NaN); "
             "sqrt is correctly rounded (IEEE 754-2019 5.4.1), pow is not")
-    if not options.fractional_powers:
+    if not options.fractional_powers or spelling.sqrt is None:
         return None, Finding(node.span, RULE, f"{original} calls pow, which libraries round differently; "
-                             f"a sqrt form would pin it, but {note}; set fractional-powers = true to rewrite")
+                             f"a sqrt form would pin it, but {note}"
+                             + ("; set fractional-powers = true to rewrite" if spelling.sqrt else ""))
     x = spelling.display(base.span)
     if fraction == Fraction(3, 2):
         if not _plain(base):
             return None, Finding(node.span, RULE, f"{original}: the base is not a plain variable: not rewritten")
-        product = f"{x}*{spelling.call('sqrt', [x])}"
+        product = f"{x}*{spelling.call(spelling.sqrt, [x])}"
         if _needs_parentheses(parent) or node.parenthesised:
             product = f"({product})"
     else:

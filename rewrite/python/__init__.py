@@ -1,0 +1,1 @@
+"""The Python front end (libcst) and its spelling."""

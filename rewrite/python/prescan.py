@@ -1,0 +1,88 @@
+"""The fast pre-scan: does a Python file hold anything the rules could touch?
+
+The standard library's ``ast`` parses about ten times faster than libcst, so every file is
+first read with it; only files with a candidate go through the libcst front end. The scan is
+conservative: it may send a file with nothing to do to libcst, never the other way round.
+Candidates: chains of three or more operands of one precedence level that are not all string
+pieces (source parentheses are checked on the text, which ``ast`` forgets), powers, the
+matrix operator, and calls of the functions the rules know (sums, means, min/max and friends,
+libm- and BLAS-dependent functions).
+"""
+from __future__ import annotations
+
+import ast
+
+CALLS = frozenset("""sum mean min max minimum maximum fmin fmax amin amax reduce dot matmul einsum inner
+tensordot vdot sin cos tan asin acos atan atan2 arcsin arccos arctan arctan2 sinh cosh tanh asinh acosh
+atanh arcsinh arccosh arctanh exp exp2 expm1 log log2 log10 log1p erf erfc gamma lgamma cbrt hypot pow
+power float_power solve inv lstsq""".split())
+_ADDITIVE = (ast.Add, ast.Sub)
+_MULTIPLICATIVE = (ast.Mult, ast.Div)
+
+
+def _level(operator: ast.operator) -> int:
+    if isinstance(operator, _ADDITIVE):
+        return 1
+    if isinstance(operator, _MULTIPLICATIVE):
+        return 2
+    return 0
+
+
+class _Lines:
+    def __init__(self, text: str):
+        self.lines = text.splitlines()
+
+    def before(self, node: ast.expr) -> str:
+        """The non-blank character just before a node's start (ast columns count UTF-8 bytes)."""
+        line, column = node.lineno - 1, node.col_offset
+        while line >= 0:
+            data = self.lines[line].encode("utf-8", "surrogateescape")[:column].rstrip()
+            if data:
+                return chr(data[-1])
+            line -= 1
+            column = len(self.lines[line].encode("utf-8", "surrogateescape")) if line >= 0 else 0
+        return ""
+
+
+def _is_string_piece(node: ast.expr) -> bool:
+    return isinstance(node, ast.JoinedStr) or (isinstance(node, ast.Constant) and isinstance(node.value, (str, bytes)))
+
+
+def _chain_operands(node: ast.BinOp):
+    level = _level(node.op)
+    current: ast.expr = node
+    while isinstance(current, ast.BinOp) and _level(current.op) == level:
+        yield current.right
+        current = current.left
+    yield current
+
+
+def has_candidates(tree: ast.AST, text: str) -> bool:
+    lines = _Lines(text)
+    for node in ast.walk(tree):
+        if isinstance(node, ast.BinOp):
+            if isinstance(node.op, (ast.Pow, ast.MatMult)):
+                return True
+            level = _level(node.op)
+            left = node.left
+            if level and isinstance(left, ast.BinOp) and _level(left.op) == level and lines.before(left) != "(":
+                if not any(_is_string_piece(operand) for operand in _chain_operands(node)):
+                    return True
+        elif isinstance(node, ast.Call):
+            function = node.func
+            name = function.attr if isinstance(function, ast.Attribute) else getattr(function, "id", None)
+            if name in CALLS:
+                return True
+    return False
+
+
+def scan(text: str) -> tuple[bool, tuple[int, str] | None]:
+    """(has candidates, syntax error as (line, message) or None)."""
+    try:
+        tree = ast.parse(text)
+    except SyntaxError as error:
+        message = error.msg or "invalid syntax"
+        return False, (error.lineno or 1, f"syntax error: {message}")
+    except (ValueError, MemoryError, RecursionError) as error:
+        return False, (1, f"cannot parse: {error}")
+    return has_candidates(tree, text), None
