@@ -98,7 +98,6 @@ def _rewrite_python(text: str, options: Options, path: str) -> Result:
         return Result(path, text, text)
     edits, findings = planner.plan(analysed.sites, text, options, PythonSpelling(text))
     edits = [e for e in edits if e.effect in options.effects]
-    edits = [e for e in edits if e.rule != "runtime" or any(other.requires for other in edits)]
     return _placed(path, text, python_render(text, edits), edits, list(analysed.findings) + findings)
 
 

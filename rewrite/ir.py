@@ -162,3 +162,12 @@ def walk(node: Node):
         current = stack.pop()
         yield current
         stack.extend(reversed([c for c in current.children() if c is not None]))
+
+
+def walk_with_parents(root: Node):
+    """(node, parent) for every node of a tree, parents before children (the root's parent: None)."""
+    stack: list[tuple[Node, Node | None]] = [(root, None)]
+    while stack:
+        node, parent = stack.pop()
+        yield node, parent
+        stack.extend((child, node) for child in reversed(node.children()) if child is not None)

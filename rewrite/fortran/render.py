@@ -4,6 +4,7 @@ cannot be wrapped is refused, never written."""
 from __future__ import annotations
 
 from ..edits import Edit, TextChange, apply_changes
+from ..spelling import Spelling
 from .source import code_length, physical_lines
 
 
@@ -125,7 +126,7 @@ def display(text: str, span, changes) -> str:
     return " ".join(" ".join(parts).split())
 
 
-class FortranSpelling:
+class FortranSpelling(Spelling):
     """How the planner's edits are spelt in Fortran (the planner knows no syntax)."""
 
     language = "fortran"
@@ -137,15 +138,7 @@ class FortranSpelling:
                   "at -O0 and -O2, pow differs from products), so the bits can change")
     runtime_note = "from the samebits runtime module (write it out with: samebits runtime fortran --out DIR)"
 
-    def __init__(self, text: str):
-        self.text = text
-
-    def display(self, span, changes=()) -> str:
-        return display(self.text, span, changes)
-
-    def spans_lines(self, span) -> bool:
-        """True when the span crosses a line break (replacing it could drop a comment)."""
-        return "\n" in self.text[span.start:span.end]
+    _display = staticmethod(display)
 
     @staticmethod
     def real_literal(value: str, type_) -> str:
@@ -156,10 +149,6 @@ class FortranSpelling:
         if kind == "d":
             return value.replace("e", "d") if "e" in value else value + "d0"
         return f"{value}_{kind}"
-
-    @staticmethod
-    def call(function: str, arguments: list[str]) -> str:
-        return f"{function}({', '.join(arguments)})"
 
     @staticmethod
     def import_line(names: list[str], indent: str, newline: str) -> str:

@@ -14,7 +14,7 @@ from __future__ import annotations
 from fractions import Fraction
 
 from ..edits import ANSWER_CHANGING, Edit, Finding, TextChange
-from ..ir import Category, Level, Node, Operand, Operation, Site, Unary
+from ..ir import Category, Level, Node, Operand, Operation, Site, Unary, walk_with_parents
 
 RULE = "power"
 
@@ -108,12 +108,6 @@ def _plain(base: Node) -> bool:
     return all(not (isinstance(n, Operand) and n.form == "call") for n in walk(base))
 
 
-def _parents(root: Node):
-    stack = [(root, None)]
-    while stack:
-        node, parent = stack.pop()
-        yield node, parent
-        stack.extend((child, node) for child in reversed(node.children()) if child is not None)
 
 
 def _needs_parentheses(parent: Node | None) -> bool:
@@ -125,7 +119,7 @@ def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Fin
     edits: list[Edit] = []
     findings: list[Finding] = []
     for root in site.roots:
-        for node, parent in _parents(root):
+        for node, parent in walk_with_parents(root):
             if not isinstance(node, Operation) or node.level is not Level.POWER:
                 continue
             base, exponent = node.left, node.right

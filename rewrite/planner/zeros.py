@@ -13,17 +13,11 @@ from __future__ import annotations
 from fractions import Fraction
 
 from ..edits import ANSWER_CHANGING, Edit, Finding, TextChange
-from ..ir import Category, Node, Operand, Operation, Site, Unary
+from ..ir import Category, Node, Operand, Operation, Site, Unary, walk_with_parents
 
 RULE = "zero"
 
 
-def _parents(root: Node):
-    stack = [(root, None)]
-    while stack:
-        node, parent = stack.pop()
-        yield node, parent
-        stack.extend((child, node) for child in reversed(node.children()) if child is not None)
 
 
 def is_positive_zero(node: Node | None) -> bool:
@@ -51,7 +45,7 @@ def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Fin
     if not guarded_functions:
         return edits, findings
     for root in site.roots:
-        for node, parent in _parents(root):
+        for node, parent in walk_with_parents(root):
             if not isinstance(node, Operand) or node.function not in guarded_functions:
                 continue
             shown = spelling.display(node.span)

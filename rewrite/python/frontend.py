@@ -16,11 +16,10 @@ import libcst as cst
 from libcst.metadata import ByteSpanPositionProvider, MetadataWrapper
 
 from ..edits import Finding, Problem
-from ..ir import (CHARACTER, LOGICAL, UNKNOWN, Category, ImportAnchor, Level, Node, NumType, Operand,
-                  Operation, Site, Span, Unary)
+from ..ir import CHARACTER, UNKNOWN, Category, ImportAnchor, Level, Node, Operand, Operation, Site, Span, Unary
 from . import prescan
 from .names import Scope, scopes_of
-from .types import NOTHING, PyType, Typer
+from .types import Typer
 
 RUNTIME_MODULE = "rewrite.runtime"
 

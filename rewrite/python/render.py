@@ -3,6 +3,7 @@ the rest of the file stays byte for byte; Python has no line limit to re-wrap fo
 from __future__ import annotations
 
 from ..edits import TextChange, apply_changes
+from ..spelling import Spelling
 
 RUNTIME_MODULE = "rewrite.runtime"
 
@@ -48,7 +49,7 @@ def display(text: str, span, changes=()) -> str:
     return joined if "'" in joined or '"' in joined else " ".join(joined.split())
 
 
-class PythonSpelling:
+class PythonSpelling(Spelling):
     """How the planner's edits are spelt in Python (the planner knows no syntax)."""
 
     language = "python"
@@ -61,24 +62,13 @@ class PythonSpelling:
                   "where pow raised OverflowError the product gives inf")
     runtime_note = "from the samebits runtime package rewrite.runtime, installed with samebits"
 
-    def __init__(self, text: str):
-        self.text = text
-
-    def display(self, span, changes=()) -> str:
-        return display(self.text, span, changes)
-
-    def spans_lines(self, span) -> bool:
-        return "\n" in self.text[span.start:span.end]
+    _display = staticmethod(display)
 
     @staticmethod
     def real_literal(value: str, type_) -> str:
         """A plain float literal: numpy keeps an array's or scalar's float32 dtype when a Python
         float meets it (NEP 50, numpy 2)."""
         return value
-
-    @staticmethod
-    def call(function: str, arguments: list[str]) -> str:
-        return f"{function}({', '.join(arguments)})"
 
     @staticmethod
     def import_line(names: list[str], indent: str, newline: str) -> str:

@@ -110,6 +110,7 @@ class Typer:
         self.scopes = scopes
         self._names: dict[tuple[int, str], PyType] = {}
         self._busy: set[tuple[int, str]] = set()
+        self._memo: dict[int, PyType] = {}  # expression types once no name is being decided
 
     # -- names -------------------------------------------------------------------------------
     def name(self, name: str, scope: Scope, local: dict[str, PyType] | None = None) -> PyType:
@@ -215,8 +216,14 @@ class Typer:
                    local: dict[str, PyType] | None = None) -> PyType:
         if node is None:
             return NOTHING
+        final = local is None and not self._busy
+        if final and id(node) in self._memo:
+            return self._memo[id(node)]
         method = getattr(self, f"_{type(node).__name__}", None)
-        return method(node, scope, local) if method else NOTHING
+        result = method(node, scope, local) if method else NOTHING
+        if final:
+            self._memo[id(node)] = result
+        return result
 
     def _Integer(self, node, scope, local):
         return scalar(INTEGER)

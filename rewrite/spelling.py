@@ -1,0 +1,36 @@
+"""What every language's spelling shares: the planner asks a spelling, never the syntax.
+
+A front end's spelling subclasses ``Spelling`` and sets the language facts the rules consult
+(``sqrt``, ``runtime_functions``, ``guarded_functions``, ``sum_dim_ranks``, ``power_note``,
+``runtime_note``) and provides ``_display``, ``real_literal`` and ``import_line``.
+"""
+from __future__ import annotations
+
+
+class Spelling:
+    language = ""
+    sqrt: str | None = None
+    runtime_functions: frozenset = frozenset()
+    guarded_functions: frozenset = frozenset()
+    sum_dim_ranks: tuple | None = None
+    power_note = ""
+    runtime_note = ""
+
+    def __init__(self, text: str):
+        self.text = text
+
+    def display(self, span, changes=()) -> str:
+        """One-line text of ``span`` with ``changes`` applied, for reasons and reports."""
+        return self._display(self.text, span, changes)
+
+    @staticmethod
+    def _display(text: str, span, changes) -> str:
+        raise NotImplementedError
+
+    def spans_lines(self, span) -> bool:
+        """True when the span crosses a line break (replacing it could drop a comment)."""
+        return "\n" in self.text[span.start:span.end]
+
+    @staticmethod
+    def call(function: str, arguments: list[str]) -> str:
+        return f"{function}({', '.join(arguments)})"
