@@ -19,8 +19,6 @@ from pathlib import Path
 from . import planner
 from .config import DEFAULT, Options
 from .edits import Edit, Finding, Problem
-from .fortran import frontend
-from .fortran.render import FortranSpelling, render
 from .python import frontend as python_frontend
 from .python.render import PythonSpelling
 from .python.render import render as python_render
@@ -73,6 +71,8 @@ def rewrite_text(text: str, language: str = "fortran", options: Options | None =
         return _rewrite_python(text, options, path)
     if language != "fortran":
         raise ValueError(f"unknown language {language!r}")
+    from .fortran import frontend  # imported here: a Python-only run does not pay for fparser
+    from .fortran.render import FortranSpelling, render
     problems = _line_problems(text, options)
     if problems:
         return Result(path, text, text, problems=tuple(problems))
@@ -204,6 +204,7 @@ _USE_LINE = re.compile(r"^[ \t]*use\b(?:[ \t]*,[ \t]*(?:non_)?intrinsic)?[ \t]*(
 
 
 def _modules_of(text: str) -> dict:
+    from .fortran import frontend
     try:
         return frontend.collect_modules(text)
     except Exception:  # a file that trips the declaration pass is reported when it is rewritten

@@ -85,7 +85,7 @@ def _write(data: str) -> None:
 @click.group()
 @click.version_option(__version__, prog_name="samebits")
 def main():
-    """Rewrite Fortran arithmetic so that it gives the same bits on every build.
+    """Rewrite Fortran and Python arithmetic so that it gives the same bits on every build.
 
     Exit status: 0 nothing to propose, 1 proposals (check), 2 errors.
     """

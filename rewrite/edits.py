@@ -20,7 +20,8 @@ EFFECTS = (BIT_FOR_BIT, ANSWER_CHANGING)
 class TextChange:
     """Replace ``start:end`` by ``text`` (an insertion when start == end). Insertions at one
     offset land in the order of ``order``: a guard that wraps a single operand opens after (+1)
-    and closes before (-1) the parentheses of a chain that starts or ends with that operand."""
+    and closes before (-1) the parentheses of a chain that starts or ends with that operand, and
+    the runtime call that replaces a method call (``a.sum()``) opens innermost (+2)."""
 
     start: int
     end: int

@@ -1,8 +1,9 @@
 """What every language's spelling shares: the planner asks a spelling, never the syntax.
 
 A front end's spelling subclasses ``Spelling`` and sets the language facts the rules consult
-(``sqrt``, ``runtime_functions``, ``guarded_functions``, ``sum_dim_ranks``, ``power_note``,
-``runtime_note``) and provides ``_display``, ``real_literal`` and ``import_line``.
+(``sqrt``, ``runtime_functions``, ``guarded_functions``, ``sum_dim_ranks``, ``order_note``,
+``power_note``, ``reciprocal_note``, ``runtime_note``) and provides ``_display``,
+``real_literal`` and ``import_line``.
 """
 from __future__ import annotations
 
@@ -13,7 +14,9 @@ class Spelling:
     runtime_functions: frozenset = frozenset()
     guarded_functions: frozenset = frozenset()
     sum_dim_ranks: tuple | None = None
+    order_note = ""  # why pinning the written order of a chain matters in this language
     power_note = ""
+    reciprocal_note = ""  # what 1/(x*...*x) does where the product underflows
     runtime_note = ""
 
     def __init__(self, text: str):

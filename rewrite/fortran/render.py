@@ -134,8 +134,11 @@ class FortranSpelling(Spelling):
     runtime_functions = frozenset({"exact_sum", "exact_dot", "sb_power"})
     guarded_functions = frozenset()  # signed-zero guards for Fortran: issue 6
     sum_dim_ranks = (2, 3)  # exact_sum of samebits_runtime takes dim for whole arrays of these ranks
+    order_note = "unparenthesised, the compiler may evaluate it in any mathematically equivalent order"
     power_note = ("how x**n is computed is left to the processor (gfortran groups x**5 and x**6 differently "
                   "at -O0 and -O2, pow differs from products), so the bits can change")
+    reciprocal_note = ("where the product underflows, the reciprocal loses accuracy (subnormal product) or is "
+                       "inf (product zero)")
     runtime_note = "from the samebits runtime module (write it out with: samebits runtime fortran --out DIR)"
 
     _display = staticmethod(display)

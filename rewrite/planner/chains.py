@@ -75,6 +75,8 @@ def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Fin
             operands, operators, operator_spans = chain_of(head)
             if len(operands) < 3:
                 continue
+            if any(o.type.category is Category.CHARACTER for o in operands):
+                continue  # a string join ("run_" + name + ".nc"), whatever the other operands are
             unknown = [o for o in operands if o.type.category is Category.UNKNOWN]
             if unknown:
                 names = ", ".join(f"'{spelling.display(o.span)}'" for o in unknown[:3])
@@ -90,8 +92,6 @@ def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Fin
             findings.extend([finding] if finding else [])
     return edits, findings
 
-
-_UNPINNED = "unparenthesised, the compiler may evaluate it in any mathematically equivalent order"
 
 
 def _changes(tree, operands, operators, operator_spans) -> list[TextChange] | None:
@@ -186,7 +186,7 @@ def _order(operands, operators, operator_spans, options, spelling):
                                          "cannot place: left as it is")
     after = spelling.display(span, changes)
     if tree == orders.written(count):
-        reason = f"pins the written left-to-right order: {after}; {_UNPINNED}"
+        reason = f"pins the written left-to-right order: {after}; {spelling.order_note}"
         if detail:
             reason += f"; {detail}"
         elif order == "accurate":

@@ -165,7 +165,7 @@ def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Fin
             written = "a real literal exponent, " if real_written else ""
             reason = (f"{original} -> {replacement}: {_NAMES.get(abs(n), 'repeated squaring')}"
                       f"{' (reciprocal)' if n < 0 else ''}, {written}one fixed grouping for every build; "
-                      f"{spelling.power_note}")
+                      f"{spelling.power_note}{'; ' + spelling.reciprocal_note if n < 0 else ''}")
             edits.append(Edit(node.span, (TextChange(node.span.start, node.span.end, replacement),), RULE,
                               ANSWER_CHANGING, reason, original, replacement))
     return edits, findings

@@ -60,7 +60,8 @@ def _changes(node: Operand, runtime: str) -> tuple[TextChange, ...]:
         return (TextChange(node.function_span.start, node.function_span.end, runtime),)
     receiver = node.parts[0]
     rest = ", " if len(node.parts) > 1 else ""
-    return (TextChange(receiver.span.start, receiver.span.start, f"{runtime}("),
+    # order 2: inside any chain parenthesis (0) or guard (1) that opens at the same offset
+    return (TextChange(receiver.span.start, receiver.span.start, f"{runtime}(", order=2),
             TextChange(node.function_span.start, node.function_span.end, rest))
 
 

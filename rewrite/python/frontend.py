@@ -5,11 +5,13 @@ offsets of the text) and include the node's own parentheses. Calls of functions 
 are named in ``Operand.function`` with a language-neutral name (``array_sum`` for ``np.sum``
 and ``arr.sum()``, ``minval`` for ``np.min``, ``exp`` for ``math.exp`` and ``np.exp``, ...),
 found through qualified names, so aliases and ``from numpy import sum as npsum`` are one thing.
-Files without a candidate (``prescan``) never reach libcst.
+Files without a candidate (``prescan``) never reach libcst, and in the others the top-level
+definitions without one reach it only as their header (``segments``).
 """
 from __future__ import annotations
 
 import bisect
+import re
 from dataclasses import dataclass, field
 
 import libcst as cst
@@ -17,8 +19,9 @@ from libcst.metadata import ByteSpanPositionProvider, MetadataWrapper
 
 from ..edits import Finding, Problem
 from ..ir import CHARACTER, UNKNOWN, Category, ImportAnchor, Level, Node, Operand, Operation, Site, Span, Unary
-from . import prescan
+from . import prescan, segments
 from .names import Scope, scopes_of
+from .segments import Outline
 from .types import Typer
 
 RUNTIME_MODULE = "rewrite.runtime"
@@ -73,21 +76,24 @@ class Analysis:
 
 
 class _Offsets:
-    """UTF-8 byte offsets -> text offsets."""
+    """UTF-8 byte offsets of the outline libcst parsed -> offsets of the file's text."""
 
-    def __init__(self, text: str):
-        data = text.encode("utf-8")
+    def __init__(self, outline: Outline):
+        self.outline = outline
+        text = outline.text
+        data = text.encode("utf-8", "surrogateescape")
         self.identity = len(data) == len(text)
         if not self.identity:
             self.starts = []
             position = 0
             for char in text:
                 self.starts.append(position)
-                position += len(char.encode("utf-8"))
+                position += len(char.encode("utf-8", "surrogateescape"))
             self.starts.append(position)
 
-    def __call__(self, byte: int) -> int:
-        return byte if self.identity else bisect.bisect_left(self.starts, byte)
+    def __call__(self, byte: int, end: bool = False) -> int:
+        offset = byte if self.identity else bisect.bisect_left(self.starts, byte)
+        return self.outline.original_offset(offset, end) if self.outline.shortened else offset
 
 
 class _Converter:
@@ -102,7 +108,7 @@ class _Converter:
     # -- spans -------------------------------------------------------------------------------
     def _raw(self, node: cst.CSTNode) -> Span:
         span = self.positions[node]
-        return Span(self.offsets(span.start), self.offsets(span.start + span.length))
+        return Span(self.offsets(span.start), self.offsets(span.start + span.length, end=True))
 
     def span(self, node: cst.CSTNode) -> Span:
         inner = self._raw(node)
@@ -133,8 +139,11 @@ class _Converter:
             return Operand(span, numtype, parenthesised, node.value, (), "name")
         if isinstance(node, (cst.Integer, cst.Float, cst.Imaginary)):
             return Operand(span, numtype, parenthesised, _literal_key(node), (), "literal")
-        if isinstance(node, (cst.SimpleString, cst.ConcatenatedString)):
+        if isinstance(node, cst.SimpleString):
             return Operand(span, CHARACTER, parenthesised, self.key(node), (), "literal")
+        if isinstance(node, (cst.FormattedString, cst.ConcatenatedString)):
+            return Operand(span, CHARACTER, parenthesised, self.key(node), tuple(self._parts(node, scope, local)),
+                           "other")
         if isinstance(node, cst.Attribute):
             if _is_dotted(node):
                 return Operand(span, numtype, parenthesised, self.key(node), (), "element")
@@ -330,24 +339,29 @@ def analyse(text: str) -> Analysis:
         line = text.count("\n", 0, error.start) + 1
         result.problems.append(Problem(line, "not valid UTF-8 (Python source must be UTF-8 here): not processed"))
         return result
-    candidates, error = prescan.scan(text)
-    if error is not None:
-        result.problems.append(Problem(*error))
+    scanned = prescan.scan(text)
+    if scanned.error is not None:
+        result.problems.append(Problem(*scanned.error))
         return result
-    if not candidates:
+    if not scanned.flagged:
         result.skipped = True
         return result
+    outline = segments.outline(text, scanned.tree, scanned.flagged)
     try:
-        module = cst.parse_module(text)
-    except cst.ParserSyntaxError as error:
-        result.problems.append(Problem(error.raw_line, f"syntax error: {error.message}"))
-        return result
+        module = cst.parse_module(outline.text)
+    except cst.ParserSyntaxError:
+        outline = segments.whole(text)  # report the error at its line in the file
+        try:
+            module = cst.parse_module(text)
+        except cst.ParserSyntaxError as error:
+            result.problems.append(Problem(error.raw_line, f"syntax error: {error.message}"))
+            return result
     wrapper = MetadataWrapper(module, unsafe_skip_copy=True)
     positions = wrapper.resolve(ByteSpanPositionProvider)
     scopes = scopes_of(module)
     typer = Typer(scopes)
-    converter = _Converter(text, positions, typer, _Offsets(text))
-    lines = [0] + [i + 1 for i, c in enumerate(text) if c == "\n"]
+    converter = _Converter(text, positions, typer, _Offsets(outline))
+    lines = [0] + [match.end() for match in re.finditer("\n", text)]
     module_scope = scopes[module]
     sites = _Sites(converter, scopes, lines, _anchor(module, converter, text, module_scope))
     sites.block(module, module_scope)

@@ -3,14 +3,15 @@
 The standard library's ``ast`` parses about ten times faster than libcst, so every file is
 first read with it; only files with a candidate go through the libcst front end. The scan is
 conservative: it may send a file with nothing to do to libcst, never the other way round.
-Candidates: chains of three or more operands of one precedence level that are not all string
-pieces (source parentheses are checked on the text, which ``ast`` forgets), powers, the
+Candidates: chains of three or more operands of one precedence level with no string piece
+among them (a left operand in parentheses starts after the chain does, so it ends the chain), powers, the
 matrix operator, and calls of the functions the rules know (sums, means, min/max and friends,
 libm- and BLAS-dependent functions).
 """
 from __future__ import annotations
 
 import ast
+from dataclasses import dataclass
 
 CALLS = frozenset("""sum mean min max minimum maximum fmin fmax amin amax reduce dot matmul einsum inner
 tensordot vdot sin cos tan asin acos atan atan2 arcsin arccos arctan arctan2 sinh cosh tanh asinh acosh
@@ -28,22 +29,6 @@ def _level(operator: ast.operator) -> int:
     return 0
 
 
-class _Lines:
-    def __init__(self, text: str):
-        self.lines = text.splitlines()
-
-    def before(self, node: ast.expr) -> str:
-        """The non-blank character just before a node's start (ast columns count UTF-8 bytes)."""
-        line, column = node.lineno - 1, node.col_offset
-        while line >= 0:
-            data = self.lines[line].encode("utf-8", "surrogateescape")[:column].rstrip()
-            if data:
-                return chr(data[-1])
-            line -= 1
-            column = len(self.lines[line].encode("utf-8", "surrogateescape")) if line >= 0 else 0
-        return ""
-
-
 def _is_string_piece(node: ast.expr) -> bool:
     return isinstance(node, ast.JoinedStr) or (isinstance(node, ast.Constant) and isinstance(node.value, (str, bytes)))
 
@@ -57,15 +42,15 @@ def _chain_operands(node: ast.BinOp):
     yield current
 
 
-def has_candidates(tree: ast.AST, text: str) -> bool:
-    lines = _Lines(text)
+def has_candidates(tree: ast.AST) -> bool:
     for node in ast.walk(tree):
         if isinstance(node, ast.BinOp):
             if isinstance(node.op, (ast.Pow, ast.MatMult)):
                 return True
             level = _level(node.op)
             left = node.left
-            if level and isinstance(left, ast.BinOp) and _level(left.op) == level and lines.before(left) != "(":
+            if level and isinstance(left, ast.BinOp) and _level(left.op) == level \
+                    and (left.lineno, left.col_offset) == (node.lineno, node.col_offset):  # left not in parentheses
                 if not any(_is_string_piece(operand) for operand in _chain_operands(node)):
                     return True
         elif isinstance(node, ast.Call):
@@ -76,13 +61,20 @@ def has_candidates(tree: ast.AST, text: str) -> bool:
     return False
 
 
-def scan(text: str) -> tuple[bool, tuple[int, str] | None]:
-    """(has candidates, syntax error as (line, message) or None)."""
+@dataclass(frozen=True)
+class Scan:
+    tree: ast.Module | None = None
+    flagged: frozenset[int] = frozenset()  # indexes of the top-level statements that hold a candidate
+    error: tuple[int, str] | None = None  # syntax error as (line, message)
+
+
+def scan(text: str) -> Scan:
+    """Parse with ast and find the top-level statements that hold a candidate."""
     try:
         tree = ast.parse(text)
     except SyntaxError as error:
         message = error.msg or "invalid syntax"
-        return False, (error.lineno or 1, f"syntax error: {message}")
+        return Scan(error=(error.lineno or 1, f"syntax error: {message}"))
     except (ValueError, MemoryError, RecursionError) as error:
-        return False, (1, f"cannot parse: {error}")
-    return has_candidates(tree, text), None
+        return Scan(error=(1, f"cannot parse: {error}"))
+    return Scan(tree, frozenset(index for index, statement in enumerate(tree.body) if has_candidates(statement)))

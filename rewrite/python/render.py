@@ -57,9 +57,14 @@ class PythonSpelling(Spelling):
     runtime_functions = frozenset({"exact_sum", "exact_mean", "exact_reduce"})
     guarded_functions = frozenset({"min", "max", "minval", "maxval"})
     sum_dim_ranks = None  # the Python runtime takes any axis
+    order_note = ("Python already evaluates it left to right; the parentheses write that order down, so it "
+                  "survives a port to Fortran or C and compilers (JIT or vectorising) that may reorder")
     power_note = ("Python computes float ** int with the C library's pow and numpy with its own power loop, "
                   "whose rounding differs between platforms and from any product, so the bits can change; "
                   "where pow raised OverflowError the product gives inf")
+    reciprocal_note = ("where the product underflows, the reciprocal loses accuracy (subnormal product), and where "
+                       "it is zero a Python float raises ZeroDivisionError (numpy gives inf) where pow raised "
+                       "OverflowError")
     runtime_note = "from the samebits runtime package rewrite.runtime, installed with samebits"
 
     _display = staticmethod(display)
