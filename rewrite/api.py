@@ -91,7 +91,7 @@ def rewrite_text(text: str, language: str = "fortran", options: Options | None =
 
 
 def _rewrite_python(text: str, options: Options, path: str) -> Result:
-    analysed = python_frontend.analyse(text)
+    analysed = python_frontend.analyse(text, frozenset(name.rpartition(".")[2] for name in options.guard_functions))
     if analysed.problems:
         return Result(path, text, text, problems=tuple(analysed.problems))
     if analysed.skipped:

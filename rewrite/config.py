@@ -6,6 +6,8 @@ Keys (TOML, dashes or underscores):
   exclude      glob patterns of paths to skip when walking directories
   module-path  directories searched for the modules that a file USEs (relative to the config
                file); the directories of the given files are always searched
+  guard-functions  further functions whose real results get a signed-zero guard, by the name
+               the code calls them (Fortran: "my_min"; Python: "np.nanmin" or "nanmin")
 """
 from __future__ import annotations
 
@@ -40,6 +42,7 @@ class Options:
     chain_order_files: tuple[tuple[str, str], ...] = ()  # (glob, order) per file, first match wins
     samples: dict = field(default_factory=dict)  # operand text -> {"samples": [...]} or {"range": [lo, hi]}
     samples_file: str = ""
+    guard_functions: tuple[str, ...] = ()  # further functions whose real results get a +0.0 guard
 
     def for_path(self, path: str) -> "Options":
         """The options for one file: a per-file chain order replaces the run's."""
@@ -88,7 +91,7 @@ def find_config(start: Path) -> Path | None:
 def from_table(table: dict, source: str = "") -> Options:
     values = {key.replace("-", "_"): value for key, value in table.items()}
     known = {"rules", "line_length", "exclude", "module_path", "power_threshold", "fractional_powers",
-             "chain_order", "chain_order_files", "samples"}
+             "chain_order", "chain_order_files", "samples", "guard_functions"}
     unknown = sorted(set(values) - known)
     if unknown:
         raise ConfigError(f"{source}: unknown option(s): {', '.join(unknown)}")
@@ -125,6 +128,11 @@ def from_table(table: dict, source: str = "") -> Options:
     if "samples" in values:
         base = Path(source).parent if source else Path.cwd()
         options = with_samples(options, base / str(values["samples"]))
+    if "guard_functions" in values:
+        names = values["guard_functions"]
+        if not isinstance(names, list) or not all(isinstance(n, str) and n.strip() for n in names):
+            raise ConfigError(f"{source}: guard-functions must be a list of function names")
+        options = replace(options, guard_functions=tuple(n.strip() for n in names))
     if "module_path" in values:
         base = Path(source).parent if source else Path.cwd()
         options = replace(options, module_path=tuple(str(base / p) for p in values["module_path"]))

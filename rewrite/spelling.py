@@ -13,6 +13,7 @@ class Spelling:
     sqrt: str | None = None
     runtime_functions: frozenset = frozenset()
     guarded_functions: frozenset = frozenset()
+    names_ignore_case = False  # Fortran names are case-insensitive
     sum_dim_ranks: tuple | None = None
     order_note = ""  # why pinning the written order of a chain matters in this language
     power_note = ""

@@ -132,7 +132,10 @@ class FortranSpelling(Spelling):
     language = "fortran"
     sqrt = "sqrt"
     runtime_functions = frozenset({"exact_sum", "exact_dot", "sb_power"})
-    guarded_functions = frozenset()  # signed-zero guards for Fortran: issue 6
+    # results that may be -0.0 depending on argument order or layout (and sign with a zero first argument)
+    guarded_functions = frozenset({"min", "max", "minval", "maxval", "amin1", "amax1", "dmin1", "dmax1",
+                                   "sign", "dsign"})
+    names_ignore_case = True
     sum_dim_ranks = (2, 3)  # exact_sum of samebits_runtime takes dim for whole arrays of these ranks
     order_note = "unparenthesised, the compiler may evaluate it in any mathematically equivalent order"
     power_note = ("how x**n is computed is left to the processor (gfortran groups x**5 and x**6 differently "

@@ -331,7 +331,9 @@ def _anchor(module: cst.Module, converter: _Converter, text: str, scope: Scope) 
     return ImportAnchor("module", offset, "", newline, runtime)
 
 
-def analyse(text: str) -> Analysis:
+def analyse(text: str, extra_calls: frozenset = frozenset()) -> Analysis:
+    """Sites of a Python text; ``extra_calls`` are further function names the pre-scan must not
+    pass over (the user's guard-functions)."""
     result = Analysis()
     try:
         text.encode("utf-8")
@@ -339,7 +341,7 @@ def analyse(text: str) -> Analysis:
         line = text.count("\n", 0, error.start) + 1
         result.problems.append(Problem(line, "not valid UTF-8 (Python source must be UTF-8 here): not processed"))
         return result
-    scanned = prescan.scan(text)
+    scanned = prescan.scan(text, extra_calls)
     if scanned.error is not None:
         result.problems.append(Problem(*scanned.error))
         return result

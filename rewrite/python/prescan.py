@@ -42,7 +42,7 @@ def _chain_operands(node: ast.BinOp):
     yield current
 
 
-def has_candidates(tree: ast.AST) -> bool:
+def has_candidates(tree: ast.AST, calls: frozenset = CALLS) -> bool:
     for node in ast.walk(tree):
         if isinstance(node, ast.BinOp):
             if isinstance(node.op, (ast.Pow, ast.MatMult)):
@@ -56,7 +56,7 @@ def has_candidates(tree: ast.AST) -> bool:
         elif isinstance(node, ast.Call):
             function = node.func
             name = function.attr if isinstance(function, ast.Attribute) else getattr(function, "id", None)
-            if name in CALLS:
+            if name in calls:
                 return True
     return False
 
@@ -68,8 +68,9 @@ class Scan:
     error: tuple[int, str] | None = None  # syntax error as (line, message)
 
 
-def scan(text: str) -> Scan:
-    """Parse with ast and find the top-level statements that hold a candidate."""
+def scan(text: str, extra_calls: frozenset = frozenset()) -> Scan:
+    """Parse with ast and find the top-level statements that hold a candidate (``extra_calls``:
+    further function names that count, such as the user's guard-functions)."""
     try:
         tree = ast.parse(text)
     except SyntaxError as error:
@@ -77,4 +78,6 @@ def scan(text: str) -> Scan:
         return Scan(error=(error.lineno or 1, f"syntax error: {message}"))
     except (ValueError, MemoryError, RecursionError) as error:
         return Scan(error=(1, f"cannot parse: {error}"))
-    return Scan(tree, frozenset(index for index, statement in enumerate(tree.body) if has_candidates(statement)))
+    calls = CALLS | extra_calls
+    return Scan(tree, frozenset(index for index, statement in enumerate(tree.body)
+                                if has_candidates(statement, calls)))

@@ -1,0 +1,92 @@
+"""The signed-zero rule in Fortran: results of min, max, minval, maxval (and sign with a first
+argument that may be zero) get a kind-matched + 0.0 guard, recognised when it is there.
+
+Outside checks: IEEE 754-2019 6.3 (an exact zero sum of opposite-signed operands is +0 in
+round-to-nearest, so x + 0.0 turns -0.0 into +0.0 and leaves every other x alone) is what the
+reasons promise; gfortran checks the bits in tests/verify/test_build_advice.py. Python's own
+float addition is used below as the IEEE 754 oracle.
+"""
+import math
+
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from rewrite.api import rewrite_text
+from rewrite.config import Options, from_table
+
+from conftest import module
+
+ZEROS = Options(rules=("zero",))
+
+
+def _rewrite(body, declarations="real(dp) :: a, b, c(4), x\n    real :: s\n    double precision :: y\n"
+                                 "    integer :: i, j", options=ZEROS):
+    result = rewrite_text(module(body, declarations), options=options)
+    assert result.problems == ()
+    return result
+
+
+def test_guards_are_spelled_in_the_operands_kind():
+    result = _rewrite("x = min(a, b)\ny = max(y, 0d0)\ns = min(s, 1.0)\nx = maxval(c)")
+    assert [e.after for e in result.edits] == ["min(a, b) + 0.0_dp", "max(y, 0d0) + 0.0d0", "min(s, 1.0) + 0.0",
+                                              "maxval(c) + 0.0_dp"]
+    assert all(e.effect == "answer-changing" and "only in the sign of a zero" in e.reason for e in result.edits)
+
+
+def test_guard_inside_an_expression_is_parenthesised():
+    result = _rewrite("x = 2.0_dp * min(a, b) - max(a, b)")
+    assert "x = 2.0_dp * (min(a, b) + 0.0_dp) - (max(a, b) + 0.0_dp)" in result.text
+
+
+def test_existing_guards_are_recognised_and_never_doubled():
+    result = _rewrite("x = min(a, b) + 0.0_dp\nx = 0.0d0 + max(a, b)\nx = (minval(c) + 0._dp) * 2.0_dp")
+    assert result.edits == ()
+    once = _rewrite("x = min(a, b) * max(a, b)")
+    assert rewrite_text(once.text, options=ZEROS).edits == ()
+
+
+def test_integer_results_and_nonzero_sign_magnitudes_are_left_alone():
+    result = _rewrite("i = min(i, j)\nx = sign(1.0_dp, a) + sign(2.5d0, b)\nx = sign(a, b)\nx = sign(0.0_dp, b)")
+    assert [e.before for e in result.edits] == ["sign(a, b)", "sign(0.0_dp, b)"]
+    assert "first argument is zero" in result.edits[0].reason
+
+
+def test_specific_names_and_upper_case():
+    result = _rewrite("y = DMAX1(y, 0.0d0)\ns = AMIN1(s, 2.0)\nx = Max(a, b)")
+    assert [e.after for e in result.edits] == ["DMAX1(y, 0.0d0) + 0.0d0", "AMIN1(s, 2.0) + 0.0",
+                                              "Max(a, b) + 0.0_dp"]
+
+
+def test_guard_functions_option_adds_user_functions():
+    source = ("module m\n  implicit none\n  integer, parameter :: dp = kind(1.0d0)\ncontains\n"
+              "  real(dp) function lowest(a, b)\n    real(dp), intent(in) :: a, b\n    lowest = a\n  end function\n"
+              "  subroutine work(a, b, x)\n    real(dp), intent(in) :: a, b\n    real(dp), intent(out) :: x\n"
+              "    x = LOWEST(a, b)\n  end subroutine\nend module m\n")
+    plain = rewrite_text(source, options=ZEROS)
+    assert plain.edits == ()
+    options = from_table({"rules": ["zero"], "guard-functions": ["lowest"]}, "samebits.toml")
+    listed = rewrite_text(source, options=options)
+    assert [e.after for e in listed.edits] == ["LOWEST(a, b) + 0.0_dp"]
+    assert "guard-functions" in listed.edits[0].reason
+
+
+def test_python_guard_functions_by_qualified_or_last_name():
+    source = ("import numpy as np\nimport numpy.typing as npt\n\n"
+              "def low(a: float, v: npt.NDArray[np.float64]) -> float:\n    return np.nanmin(v) * a\n")
+    assert rewrite_text(source, language="python", options=ZEROS).edits == ()  # not listed: nothing
+    for name in ("nanmin", "np.nanmin"):
+        options = from_table({"rules": ["zero"], "guard-functions": [name]}, "samebits.toml")
+        result = rewrite_text(source, language="python", options=options)
+        assert [e.after for e in result.edits] == ["(np.nanmin(v) + 0.0)"]
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.sampled_from([0.0, -0.0, 1.5, -2.25, 5e-324, -5e-324, 1e308, -math.inf, math.inf]))
+def test_the_guard_does_what_the_reason_says(value):
+    # IEEE 754-2019 6.3 through Python's float addition: x + 0.0 is +0.0 for x = -0.0 and x itself
+    # for every other x (the reason's promise: "answer-changing only in the sign of a zero result")
+    guarded = value + 0.0
+    if value == 0.0:
+        assert math.copysign(1.0, guarded) == 1.0
+    else:
+        assert guarded == value
