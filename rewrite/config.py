@@ -6,6 +6,7 @@ Keys (TOML, dashes or underscores):
   exclude      glob patterns of paths to skip when walking directories
   module-path  directories searched for the modules that a file USEs (relative to the config
                file); the directories of the given files are always searched
+  audit        which audit checks run (default all): "libm", "blas", "fma", "build"
   guard-functions  further functions whose real results get a signed-zero guard, by the name
                the code calls them (Fortran: "my_min"; Python: "np.nanmin" or "nanmin")
 """
@@ -23,6 +24,7 @@ else:  # pragma: no cover
     import tomli as tomllib
 
 ALL_RULES = ("chain", "power", "sum", "zero", "audit")
+AUDIT_CHECKS = ("libm", "blas", "fma", "build")
 
 
 class ConfigError(ValueError):
@@ -43,6 +45,7 @@ class Options:
     samples: dict = field(default_factory=dict)  # operand text -> {"samples": [...]} or {"range": [lo, hi]}
     samples_file: str = ""
     guard_functions: tuple[str, ...] = ()  # further functions whose real results get a +0.0 guard
+    audit_checks: tuple[str, ...] = AUDIT_CHECKS  # which findings the audit rule gives
 
     def for_path(self, path: str) -> "Options":
         """The options for one file: a per-file chain order replaces the run's."""
@@ -91,7 +94,7 @@ def find_config(start: Path) -> Path | None:
 def from_table(table: dict, source: str = "") -> Options:
     values = {key.replace("-", "_"): value for key, value in table.items()}
     known = {"rules", "line_length", "exclude", "module_path", "power_threshold", "fractional_powers",
-             "chain_order", "chain_order_files", "samples", "guard_functions"}
+             "chain_order", "chain_order_files", "samples", "guard_functions", "audit"}
     unknown = sorted(set(values) - known)
     if unknown:
         raise ConfigError(f"{source}: unknown option(s): {', '.join(unknown)}")
@@ -128,6 +131,11 @@ def from_table(table: dict, source: str = "") -> Options:
     if "samples" in values:
         base = Path(source).parent if source else Path.cwd()
         options = with_samples(options, base / str(values["samples"]))
+    if "audit" in values:
+        checks = values["audit"]
+        if not isinstance(checks, list) or any(c not in AUDIT_CHECKS for c in checks):
+            raise ConfigError(f"{source}: audit must be a list of checks from {', '.join(AUDIT_CHECKS)}")
+        options = replace(options, audit_checks=tuple(checks))
     if "guard_functions" in values:
         names = values["guard_functions"]
         if not isinstance(names, list) or not all(isinstance(n, str) and n.strip() for n in names):

@@ -153,6 +153,7 @@ class Site:
     roots: tuple[Node, ...]
     context: str
     anchor: ImportAnchor | None = None
+    in_loop: bool = False  # inside a loop or array construct the compiler may vectorise
 
 
 def walk(node: Node):

@@ -14,6 +14,8 @@ class Spelling:
     runtime_functions: frozenset = frozenset()
     guarded_functions: frozenset = frozenset()
     names_ignore_case = False  # Fortran names are case-insensitive
+    fma_note = ""  # set where the language's compilers contract a*b + c into an FMA
+    vector_libm_note = ""  # set where compilers swap libm for a vector library in vectorised loops
     sum_dim_ranks: tuple | None = None
     order_note = ""  # why pinning the written order of a chain matters in this language
     power_note = ""

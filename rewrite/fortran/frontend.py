@@ -51,6 +51,16 @@ class _Pending:
     statement: Statement
     tokens: list[Token]
     scope: Scope
+    in_loop: bool = False
+
+
+@dataclass
+class _Loop:
+    """An open DO loop, FORALL or WHERE construct; ``label`` ends a labelled DO."""
+
+    keyword: str  # do | forall | where
+    label: str = ""
+    vectorisable: bool = True  # DO WHILE and a bare DO are not counted loops
 
 
 class _NotUnderstood(Exception):
@@ -173,6 +183,7 @@ class _Builder:
         self.select_is_type: list[bool] = []
         self.in_type_contains = False
         self.pending: list[_Pending] = []
+        self.loops: list[_Loop] = []
 
     @property
     def scope(self) -> Scope:
@@ -185,7 +196,13 @@ class _Builder:
         self.stack.append(scope)
 
     def statement(self, statement: Statement, tokens: list[Token]) -> None:
-        tokens = _strip_label_and_name(tokens)
+        label = tokens[0].text if len(tokens) > 1 and tokens[0].kind == "int" and tokens[0].text.isdigit() else ""
+        self._statement(statement, _strip_label_and_name(tokens))
+        if label:  # a labelled DO ends with the statement that carries its label (shared ends too)
+            while self.loops and self.loops[-1].label == label:
+                self.loops.pop()
+
+    def _statement(self, statement: Statement, tokens: list[Token]) -> None:
         if not tokens:
             return
         scope = self.scope
@@ -311,6 +328,11 @@ class _Builder:
 
     def end(self, statement: Statement, kind: str) -> None:
         scope = self.scope
+        if kind in ("do", "where", "forall"):
+            for index in range(len(self.loops) - 1, -1, -1):
+                if self.loops[index].keyword == kind:
+                    del self.loops[index:]
+                    break
         if kind in ("do", "if", "where", "forall", "critical", "enum", "team"):
             if scope.kind == "file":
                 self.problem(statement, f"END {kind.upper()} outside any program unit")
@@ -471,7 +493,34 @@ class _Builder:
                     statement_function.type = implicit if implicit.is_known else None
         else:
             scope.seen_executable = True
-        self.pending.append(_Pending(statement, tokens, scope))
+        in_loop = any(loop.vectorisable for loop in self.loops)
+        word = _word(tokens, 0)
+        if word in ("forall", "where") and len(tokens) > 1 and tokens[1].kind == "(":
+            close = matching(tokens, 1)
+            if close == len(tokens) - 1:
+                self.loops.append(_Loop(word))  # the construct form: up to END FORALL / END WHERE
+            else:
+                in_loop = True  # the statement form is an array statement itself
+        elif not _assignment_kind(tokens):
+            self._begin_do(word, tokens)
+        self.pending.append(_Pending(statement, tokens, scope, in_loop))
+
+    def _begin_do(self, word: str, tokens: list[Token]) -> None:
+        """DO [label] [,] var = ..., DO [label] [,] WHILE (...), DO CONCURRENT (...), or a bare DO."""
+        if word not in ("do", "dowhile", "doconcurrent"):
+            return
+        position, label = 1, ""
+        if word == "do" and position < len(tokens) and tokens[position].kind == "int":
+            label = tokens[position].text
+            position += 1
+        if position < len(tokens) and tokens[position].kind == ",":
+            position += 1
+        following = _word(tokens, position)
+        if word == "dowhile" or following == "while":
+            counted = False
+        else:
+            counted = word == "doconcurrent" or following == "concurrent" or position < len(tokens)
+        self.loops.append(_Loop("do", label, counted))
 
 
 # -- pass 2 ----------------------------------------------------------------------------------
@@ -658,7 +707,8 @@ def _site(pending: _Pending, program: Program, result: FrontEndResult, text: str
                                        "statement left as it is: a preprocessor line interrupts it"))
         return
     if roots:
-        result.sites.append(Site(span, statement.line, tuple(roots), context, _anchor(pending.scope, text)))
+        result.sites.append(Site(span, statement.line, tuple(roots), context, _anchor(pending.scope, text),
+                                 pending.in_loop))
 
 
 def _anchor(scope: Scope, text: str) -> ImportAnchor | None:
