@@ -22,6 +22,7 @@ from .edits import Edit, Finding, Problem
 from .python import frontend as python_frontend
 from .python.render import PythonSpelling
 from .python.render import render as python_render
+from .python.segments import line_starts
 from .fortran.source import FIXED_FORM_SUFFIXES, FREE_FORM_SUFFIXES, code_length, physical_lines
 
 
@@ -42,8 +43,8 @@ class Result:
 
 
 class _Lines:
-    def __init__(self, text: str):
-        self.starts = [line.start for line in physical_lines(text)] or [0]
+    def __init__(self, text: str, starts: list[int] | None = None):
+        self.starts = starts or [line.start for line in physical_lines(text)] or [0]
 
     def position(self, offset: int) -> tuple[int, int]:
         index = bisect.bisect_right(self.starts, offset) - 1
@@ -98,12 +99,14 @@ def _rewrite_python(text: str, options: Options, path: str) -> Result:
         return Result(path, text, text)
     edits, findings = planner.plan(analysed.sites, text, options, PythonSpelling(text))
     edits = [e for e in edits if e.effect in options.effects]
-    return _placed(path, text, python_render(text, edits), edits, list(analysed.findings) + findings)
+    return _placed(path, text, python_render(text, edits), edits, list(analysed.findings) + findings,
+                   line_starts(text))  # Python counts a lone CR as a line end too
 
 
-def _placed(path: str, text: str, new_text: str, edits: list[Edit], findings: list[Finding]) -> Result:
+def _placed(path: str, text: str, new_text: str, edits: list[Edit], findings: list[Finding],
+            starts: list[int] | None = None) -> Result:
     """The result, with line and column on every edit and finding."""
-    lines = _Lines(text)
+    lines = _Lines(text, starts)
     placed_edits = tuple(sorted((replace(e, line=lines.position(e.span.start)[0],
                                          column=lines.position(e.span.start)[1]) for e in edits),
                                 key=lambda e: (e.span.start, e.span.end)))

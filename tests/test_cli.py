@@ -38,6 +38,11 @@ def test_diff_is_accepted_by_git_apply(tmp_path):
     shutil.copy(FIXTURES / "bad" / "crlf.f90", work / "crlf.f90")
     shutil.copy(FIXTURES / "bad" / "no_newline_at_end.f90", work / "no_newline_at_end.f90")
     shutil.copy(FIXTURES / "bad" / "latin1.f90", work / "latin1.f90")
+    # form feeds (a page break line, and one in a line's indentation) and lone-CR line ends: a
+    # unified diff splits lines at LF only, as git does
+    (work / "pages.py").write_bytes(b"x = 1.0\n\x0c\n\x0cdef f(a: float, b: float) -> float:\n"
+                                    b"    return a + b + x\n")
+    (work / "old_mac.py").write_bytes(b"def f(a: float, b: float) -> float:\r    return a + b + 1.0\r")
     subprocess.run(["git", "init", "-q"], cwd=work, check=True)
     diff = subprocess.run([sys.executable, "-m", "rewrite.cli", "diff", "."], cwd=work, capture_output=True)
     assert diff.returncode == 0 and diff.stdout.count(b"\n--- a/") + diff.stdout.startswith(b"--- a/") >= 1
@@ -45,6 +50,9 @@ def test_diff_is_accepted_by_git_apply(tmp_path):
     applied = subprocess.run(["git", "apply", "--whitespace=nowarn", str(tmp_path / "change.diff")], cwd=work,
                              capture_output=True, text=True)
     assert applied.returncode == 0, applied.stderr
+    assert (work / "pages.py").read_bytes().endswith(b"\x0cdef f(a: float, b: float) -> float:\n"
+                                                     b"    return (a + b) + x\n")
+    assert (work / "old_mac.py").read_bytes() == b"def f(a: float, b: float) -> float:\r    return (a + b) + 1.0\r"
     # after git applied it, nothing is left to propose
     check_again = _run("check", ".", cwd=work)
     assert check_again.returncode == 0, check_again.stdout

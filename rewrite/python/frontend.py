@@ -215,7 +215,11 @@ class _Converter:
             elements = (node.key, node.value) if isinstance(node, cst.DictComp) else (node.elt,)
             return [self.convert(e, scope, inner) for e in elements] + parts
         if isinstance(node, cst.Lambda):
-            return [self.convert(node.body, self.typer.scopes.get(node, scope), None)]
+            params = node.params
+            defaults = [p.default for p in (*params.posonly_params, *params.params, *params.kwonly_params)
+                        if p.default is not None]  # evaluated where the lambda is, as a def's are
+            return [self.convert(d, scope, local) for d in defaults] + \
+                [self.convert(node.body, self.typer.scopes.get(node, scope), None)]
         if isinstance(node, cst.FormattedStringExpression) and node.equal is not None:
             return []  # f"{a + b + c=}" prints the expression's own text: leave it exactly as written
         parts: list[Node] = []
@@ -331,6 +335,13 @@ def _anchor(module: cst.Module, converter: _Converter, text: str, scope: Scope) 
     return ImportAnchor("module", offset, "", newline, runtime)
 
 
+def _file_line(outline: Outline, text: str, line: int) -> int:
+    """The file's line number of a line of the outline."""
+    starts = segments.line_starts(outline.text)
+    offset = outline.original_offset(starts[min(max(line, 1), len(starts)) - 1])
+    return bisect.bisect_right(segments.line_starts(text), offset)
+
+
 def analyse(text: str, extra_calls: frozenset = frozenset()) -> Analysis:
     """Sites of a Python text; ``extra_calls`` are further function names the pre-scan must not
     pass over (the user's guard-functions)."""
@@ -341,7 +352,8 @@ def analyse(text: str, extra_calls: frozenset = frozenset()) -> Analysis:
         line = text.count("\n", 0, error.start) + 1
         result.problems.append(Problem(line, "not valid UTF-8 (Python source must be UTF-8 here): not processed"))
         return result
-    scanned = prescan.scan(text, extra_calls)
+    bom = 1 if text.startswith("\ufeff") else 0  # Python reads a file that starts with one as UTF-8
+    scanned = prescan.scan(text[bom:], extra_calls)
     if scanned.error is not None:
         result.problems.append(Problem(*scanned.error))
         return result
@@ -351,15 +363,21 @@ def analyse(text: str, extra_calls: frozenset = frozenset()) -> Analysis:
     outline = segments.outline(text, scanned.tree, scanned.flagged)
     try:
         module = cst.parse_module(outline.text)
-    except cst.ParserSyntaxError:
-        outline = segments.whole(text)  # report the error at its line in the file
-        try:
-            module = cst.parse_module(text)
-        except cst.ParserSyntaxError as error:
-            result.problems.append(Problem(error.raw_line, f"syntax error: {error.message}"))
-            return result
+    except cst.ParserSyntaxError as error:
+        # the standard library's parser accepted the file: this is libcst's limit, not the user's error
+        result.problems.append(Problem(_file_line(outline, text, error.raw_line), "not processed: libcst cannot "
+                                       f"parse this file ({error.message.splitlines()[0]})"))
+        return result
     wrapper = MetadataWrapper(module, unsafe_skip_copy=True)
     positions = wrapper.resolve(ByteSpanPositionProvider)
+    expected = len(outline.text.encode("utf-8")) + (not outline.text.endswith(("\n", "\r")))  # libcst counts a
+    if positions[module].length != expected:  # missing final line break; anything else is a dropped character
+        line = next((i + 1 for i, (a, b) in enumerate(zip(module.code.splitlines(), outline.text.splitlines()))
+                     if a != b), 1)
+        line = _file_line(outline, text, line)
+        result.problems.append(Problem(line, "not processed: libcst does not keep this file byte for byte, so "
+                                             "edits could not be placed exactly"))
+        return result
     scopes = scopes_of(module)
     typer = Typer(scopes)
     converter = _Converter(text, positions, typer, _Offsets(outline))

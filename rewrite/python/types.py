@@ -15,6 +15,8 @@ import libcst as cst
 from ..ir import CHARACTER, INTEGER, LOGICAL, REAL, UNKNOWN, Category, NumType, arithmetic_type
 from .names import Binding, Scope
 
+RUNTIME = "rewrite.runtime"  # the package rewritten code imports from (python/render.py)
+
 COMPLEX = NumType(Category.COMPLEX)
 
 
@@ -360,7 +362,21 @@ class Typer:
             return scalar(REAL)
         if function.startswith("numpy."):
             return self._numpy(function[6:], positional, keywords, scope, local)
+        if function.startswith(RUNTIME + "."):
+            return self._runtime(function[len(RUNTIME) + 1:], positional, keywords, scope, local)
         return NOTHING
+
+    def _runtime(self, name, positional, keywords, scope, local):
+        """What samebits' own runtime returns (its docstrings): the input's float precision for
+        arrays, float64 for iterables; a scalar without ``axis``."""
+        if name not in ("exact_sum", "exact_mean", "exact_reduce", "exact_dot") or not positional:
+            return NOTHING
+        first = self.expression(positional[0], scope, local)
+        if first.element.category not in (Category.INTEGER, Category.REAL):
+            return NOTHING
+        kind = first.element.kind if first.shape == "array" and first.element.category is Category.REAL else None
+        by_axis = "axis" in keywords or (len(positional) > 1 and name != "exact_dot")  # as for np.add.reduce
+        return PyType(NumType(Category.REAL, kind), "array" if by_axis else "scalar")
 
     def _builtin(self, name, positional, scope, local):
         args = [self.expression(a, scope, local) for a in positional]

@@ -7,6 +7,7 @@ reviewer cannot miss one.
 from __future__ import annotations
 
 import difflib
+import re
 
 from ..edits import ANSWER_CHANGING, BIT_FOR_BIT
 from .paths import shown
@@ -14,8 +15,12 @@ from .paths import shown
 _NO_NEWLINE = "\\ No newline at end of file\n"
 
 
+_LINE = re.compile(r"[^\n]*\n|[^\n]+\Z")
+
+
 def _lines(text: str) -> list[str]:
-    return text.splitlines(keepends=True)
+    """Lines as git and patch see them: ended by LF only (a form feed or a lone CR is not an end)."""
+    return _LINE.findall(text)
 
 
 def _emit(line: str, prefix: str) -> list[str]:

@@ -314,10 +314,10 @@ def test_permissions_and_on_disk_changes(tmp_path):
     assert sorted(p.name for p in tmp_path.iterdir()) == ["kept.py"]
 
 
-# -- tool bugs found here (strict xfail: a fix shows up as an unexpected pass) -------------------
-@pytest.mark.xfail(strict=True, reason="a UTF-8 BOM is reported as 'syntax error: invalid non-printable character "
-                                       "U+FEFF'; Python reads a file that starts with the BOM as UTF-8 "
-                                       "(Language Reference 2.1.4, Encoding declarations)")
+# -- tool bugs found here, now fixed: the tests stay so that they cannot come back -----------------
+# once a bug (fixed): a UTF-8 BOM is reported as 'syntax error: invalid non-printable character
+# U+FEFF'; Python reads a file that starts with the BOM as UTF-8 (Language Reference 2.1.4, Encoding
+# declarations)
 def test_bom_file_is_processed(tmp_path):
     source = b"\xef\xbb\xbfdef f(a: float, b: float) -> float:\n    return a + b + 1.0\n"
     compile(source, "bom.py", "exec")  # outside check: CPython accepts it
@@ -328,10 +328,9 @@ def test_bom_file_is_processed(tmp_path):
     assert after.startswith(b"\xef\xbb\xbf") and _only_parentheses_inserted(after, source)
 
 
-@pytest.mark.xfail(strict=True, reason="a form feed before the first token of a line (allowed: Language Reference "
-                                       "2.1.8, Indentation) is dropped by libcst 1.0's positions, so every later "
-                                       "edit lands one character early and apply writes a file that no longer "
-                                       "compiles: 'return( a + )b + 1.0'")
+# once a bug (fixed): a form feed before the first token of a line (allowed: Language Reference
+# 2.1.8, Indentation) is dropped by libcst 1.0's positions, so every later edit lands one character
+# early and apply writes a file that no longer compiles: 'return( a + )b + 1.0'
 @pytest.mark.parametrize("source", [
     pytest.param(b"\x0cdef f(a: float, b: float) -> float:\n    return a + b + 1.0\n", id="first-line"),
     pytest.param(b"x = 1.0\n\x0cdef f(a: float, b: float) -> float:\n    return a + b + 1.0\n", id="later-line"),
@@ -346,9 +345,9 @@ def test_form_feed_before_a_statement(source, tmp_path):
     assert run.returncode == 0 and _only_parentheses_inserted(after, source) and after != source
 
 
-@pytest.mark.xfail(strict=True, reason="a file with both CR LF and LF line ends (valid: Language Reference 2.1.2, "
-                                       "Physical lines) is reported as 'syntax error: Internal error while "
-                                       "parsing whitespace: ...' at line 1 (a libcst 1.0 message)")
+# once a bug (fixed): a file with both CR LF and LF line ends (valid: Language Reference 2.1.2,
+# Physical lines) is reported as 'syntax error: Internal error while parsing whitespace: ...' at
+# line 1 (a libcst 1.0 message)
 def test_mixed_line_endings_are_not_a_syntax_error(tmp_path):
     source = b"x = 1.0\r\ndef f(a: float, b: float) -> float:\n    return a + b + 1.0\r\n"
     compile(source, "mixed.py", "exec")  # outside check: CPython accepts it
@@ -369,8 +368,8 @@ def test_cr_only_file_is_rewritten_with_its_line_ends(tmp_path):
     assert after != source and _only_parentheses_inserted(after, source) and b"\n" not in after
 
 
-@pytest.mark.xfail(strict=True, reason="line numbers count LF only: in a file with lone-CR line ends (Language "
-                                       "Reference 2.1.2) the edit on line 2 is reported as cr.py:1:45")
+# once a bug (fixed): line numbers counted LF only: in a file with lone-CR line ends (Language
+# Reference 2.1.2) the edit on line 2 was reported as cr.py:1:45
 def test_cr_only_file_reports_python_line_numbers(tmp_path):
     source = b"def f(a: float, b: float) -> float:\r    s = a + b + 1.0\r    return s\r"
     (tmp_path / "cr.py").write_bytes(source)

@@ -42,11 +42,8 @@ RUNTIME_IMPORT = "from rewrite.runtime import"
 # Tool bugs found while writing these tests: the tests they break are marked xfail(strict), so
 # that a fix shows up as an unexpected pass. test_python_bad_input.py ends with minimal
 # reproducers of these and of the other bugs found.
-KNOWN_BUGS = {
-    "bom_sediment.py": "a UTF-8 byte-order mark at the start of a .py file is reported as "
-                       "'syntax error: invalid non-printable character U+FEFF', although Python "
-                       "accepts it (Language Reference 2.1.4, Encoding declarations)",
-}
+# (the BOM fixture was one: "a UTF-8 byte-order mark ... reported as a syntax error"; fixed)
+KNOWN_BUGS: dict[str, str] = {}
 
 
 def _cases(*, broken_by_bugs: bool):
@@ -354,7 +351,7 @@ def test_second_run_is_a_no_op(name):
 _EXACT_SUM_TYPE = ("the typer does not know that rewrite.runtime.exact_sum returns a float: once "
                    "total = sum(xs) became exact_sum(xs), total is 'of unknown type', so a second run "
                    "adds notes (and a chain on total added later would not be pinned)")
-KNOWN_FINDING_BUGS = {"outflow_types.py": _EXACT_SUM_TYPE, "mixing_modes.py": _EXACT_SUM_TYPE}
+KNOWN_FINDING_BUGS: dict[str, str] = {}  # outflow_types.py and mixing_modes.py were: _EXACT_SUM_TYPE (fixed)
 
 
 @pytest.mark.parametrize("name", [pytest.param(n, marks=pytest.mark.xfail(strict=True, reason=KNOWN_FINDING_BUGS[n]))
@@ -394,9 +391,8 @@ def test_cli_apply_writes_what_the_api_returns(tmp_path):
     assert diffed.returncode == 0 and diffed.stdout == b""
 
 
-@pytest.mark.parametrize("name", sorted(KNOWN_BUGS))
-@pytest.mark.xfail(strict=True, reason="see KNOWN_BUGS")
-def test_cli_apply_on_known_bug_fixtures(name, tmp_path):
+@pytest.mark.parametrize("name", ["bom_sediment.py"])  # once a known bug (BOM), now fixed
+def test_cli_apply_on_once_broken_fixtures(name, tmp_path):
     shutil.copyfile(HERE / name, tmp_path / name)
     applied = _cli("apply", name, cwd=tmp_path)
     assert applied.returncode == 0, applied.stderr.decode()
@@ -586,8 +582,7 @@ def test_any_layout_of_a_chain_gets_the_same_parentheses(chain, values):
 
 
 # -- gaps found while writing the fixtures (missed candidates, not wrong edits) ----------------
-@pytest.mark.xfail(strict=True, reason="a lambda's parameter default is not a site, while a def's is: "
-                                       "lambda q=0.5 + 0.25 + 0.125: q is left unpinned")
+# once a bug (fixed): a lambda's parameter default was not a site, while a def's is
 def test_lambda_default_is_edited_like_a_def_default():
     source = "def f():\n    g = lambda q=0.5 + 0.25 + 0.125: q\n    return g()\n"
     assert rewrite_text("def h(q=0.5 + 0.25 + 0.125):\n    return q\n", language="python").edits
