@@ -3,8 +3,9 @@
 ``rewrite_text`` turns one source text into a ``Result``: the rewritten text, the edits (each
 marked bit-for-bit or answer-changing), the findings (reported, not edited) and the problems
 (errors: the text is then returned unchanged). ``rewrite_paths`` does the same for files and
-directories, resolving USE between the Fortran files of one batch, and ``write_result`` puts
-a result on disk atomically.
+directories, resolving USE between the Fortran files of one batch and auditing the build files
+found there (``audit_build_text``: results with findings only, never written), and
+``write_result`` puts a result on disk atomically.
 """
 from __future__ import annotations
 
@@ -19,6 +20,7 @@ from pathlib import Path
 from . import planner
 from .config import DEFAULT, Options
 from .edits import Edit, Finding, Problem
+from .ir import Span
 from .python import frontend as python_frontend
 from .python.render import PythonSpelling
 from .python.render import render as python_render
@@ -147,10 +149,27 @@ def language_of(path: Path) -> str | None:
     return None
 
 
-def collect(paths: list[str], options: Options) -> tuple[list[Path], list[Result]]:
-    """Files to process from the given paths, and notices for those skipped."""
+def _first_line(path: Path) -> str:
+    try:
+        with path.open("rb") as handle:
+            return handle.readline(200).decode("utf-8", "replace")
+    except OSError:
+        return ""
+
+
+def is_build_file(path: Path) -> bool:
+    """Makefiles, CMake, fpm.toml, compile_commands.json and shell build scripts (rewrite.build)."""
+    from .build import is_build_file as by_name
+    return by_name(path.name, _first_line(path) if not path.suffix else "")
+
+
+def collect(paths: list[str], options: Options) -> tuple[list[Path], list[Result], list[Path]]:
+    """Source files to process from the given paths, notices for those skipped, and the build
+    files to audit (only when the audit's build check runs)."""
     files: list[Path] = []
     skipped: list[Result] = []
+    builds: list[Path] = []
+    audit_builds = "audit" in options.rules and "build" in options.audit_checks
     for given in paths:
         path = Path(given)
         if path.is_dir():
@@ -165,22 +184,50 @@ def collect(paths: list[str], options: Options) -> tuple[list[Path], list[Result
                     elif candidate.suffix in FIXED_FORM_SUFFIXES:
                         skipped.append(Result(str(candidate), "", "", notice="fixed-form source is not "
                                               "supported yet: skipped"))
+                    elif audit_builds and is_build_file(candidate):
+                        builds.append(candidate)
         elif path.exists():
             if language_of(path):
                 files.append(path)
             elif path.suffix in FIXED_FORM_SUFFIXES:
                 skipped.append(Result(str(path), "", "", notice="fixed-form source is not supported yet: skipped"))
+            elif is_build_file(path):
+                if audit_builds:
+                    builds.append(path)
+                else:
+                    skipped.append(Result(str(path), "", "", notice="a build file, and the audit's build check "
+                                          "is off: skipped"))
             else:
-                skipped.append(Result(str(path), "", "", notice="not a free-form Fortran or a Python file: skipped"))
+                skipped.append(Result(str(path), "", "", notice="not a free-form Fortran, Python or build file: "
+                                      "skipped"))
         else:
             skipped.append(Result(str(path), "", "", problems=(Problem(0, "no such file or directory"),)))
-    return files, skipped
+    return files, skipped, builds
+
+
+def audit_build_text(text: str, path: str = "Makefile", libm_in_loops: bool | None = None) -> Result:
+    """The build audit of one build file's text, as a Result with findings (rule "build")."""
+    from .build import BuildFileError, scan_build_text
+    try:
+        found = scan_build_text(Path(path).name, text, libm_in_loops)
+    except BuildFileError as error:
+        return Result(path, text, text, problems=(Problem(error.line, f"{error.message}: not audited"),))
+    findings = [Finding(Span(f.start, f.end), "build", f.message, f.severity, kind="build") for f in found]
+    return _placed(path, text, text, [], findings)
+
+
+def _libm_in_loops(results: list[Result]) -> bool | None:
+    """Whether the Fortran of the run calls libm in vectorisable loops (None: no Fortran in the run)."""
+    fortran = [r for r in results if language_of(Path(r.path)) == "fortran" and not r.problems]
+    if not fortran:
+        return None
+    return any(f.kind == "libm-loop" for r in fortran for f in r.findings)
 
 
 def rewrite_paths(paths: list[str], options: Options | None = None) -> list[Result]:
     """Results for every file under ``paths``, in order; a bad file never stops the batch."""
     options = options or DEFAULT
-    files, results = collect(paths, options)
+    files, results, builds = collect(paths, options)
     contents: list[tuple[Path, bytes | None, Problem | None]] = [(f, *_read(f)) for f in files]
     fortran = [(path, data) for path, data, problem in contents
                if problem is None and data is not None and language_of(path) == "fortran"]
@@ -197,6 +244,18 @@ def rewrite_paths(paths: list[str], options: Options | None = None) -> list[Resu
         except Exception as error:  # a bug of ours must not stop the batch or touch the file
             result = Result(str(path), text, text,
                             problems=(Problem(1, f"internal error, file left as it is: {error!r}"),))
+        results.append(replace(result, data=data))
+    libm_in_loops = _libm_in_loops(results)
+    for path in builds:
+        data, problem = _read(path)
+        if problem is not None:
+            results.append(Result(str(path), "", "", problems=(problem,), data=data))
+            continue
+        text = decode(data)
+        try:
+            result = audit_build_text(text, str(path), libm_in_loops)
+        except Exception as error:  # a bug of ours must not stop the batch
+            result = Result(str(path), text, text, problems=(Problem(1, f"internal error, not audited: {error!r}"),))
         results.append(replace(result, data=data))
     return results
 

@@ -139,6 +139,36 @@ def apply(**settings):
     sys.exit(2 if failed else 0)
 
 
+SEVERITIES = ("note", "warning", "error")
+
+
+@main.command()
+@_paths
+@_config
+@click.option("--format", "output_format", type=click.Choice(["text", "json"]), default="text",
+              help="text: one line per finding; json: one document for editors.")
+@click.option("--severity", "lowest", type=click.Choice(SEVERITIES), default="note",
+              help="Show findings of this severity and above (default: note, all of them).")
+def audit(paths, config_path, output_format, lowest):
+    """What parentheses cannot pin: libm and BLAS calls, FMA-prone shapes, and the build files'
+    compiler options, as file:line:col: rule: severity: message (exit 1 if any is shown)."""
+    options = _options(paths, None, config_path, None)
+    options = replace(options, rules=("audit",))
+    results = api.rewrite_paths(list(paths), options)
+    failed = _report_problems(results)
+    shown_from = SEVERITIES.index(lowest)
+    results = [replace(r, edits=(), findings=tuple(f for f in r.findings if f.rule in ("audit", "build")
+                                                   and SEVERITIES.index(f.severity) >= shown_from))
+               for r in results]
+    if output_format == "json":
+        _write(json_report.report(results) + "\n")
+    else:
+        lines = [line for result in results for line in text.check_lines(result)]
+        if lines:
+            _write("\n".join(lines) + "\n")
+    sys.exit(2 if failed else (1 if any(r.findings for r in results) else 0))
+
+
 @main.group()
 def runtime():
     """Write out the runtime that rewritten code calls."""

@@ -53,6 +53,7 @@ class Finding:
     severity: str = "note"
     line: int = 0
     column: int = 0
+    kind: str = ""  # what the audit found (libm, libm-loop, blas, fma, pow, build), for filters and reports
 
 
 @dataclass(frozen=True)

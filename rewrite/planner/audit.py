@@ -74,25 +74,25 @@ def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Fin
                 if _vectorisable(site, node) and getattr(spelling, "vector_libm_note", ""):
                     findings.append(Finding(node.span, RULE, f"{spelling.display(node.span)}: in a loop or on "
                                             f"arrays: {spelling.vector_libm_note} (and libm itself is not "
-                                            "correctly rounded)", "warning"))
+                                            "correctly rounded)", "warning", kind="libm-loop"))
                 else:
                     findings.append(Finding(node.span, RULE, f"{spelling.display(node.span)}: {_LIBM_RISK}; "
-                                            f"{advice}", getattr(spelling, "libm_severity", "warning")))
+                                            f"{advice}", getattr(spelling, "libm_severity", "warning"), kind="libm"))
             elif isinstance(node, Operand) and node.function in BLAS:
                 if not blas:
                     continue
                 findings.append(Finding(node.span, RULE, f"{spelling.display(node.span)}: {_BLAS_RISK}; for "
                                         "reproducible sums use exact_dot from the runtime or fix the library and "
-                                        "thread count", "warning"))
+                                        "thread count", "warning", kind="blas"))
             elif isinstance(node, Operation) and node.operator == "@" and blas:
                 findings.append(Finding(node.span, RULE, f"{spelling.display(node.span)}: matrix product: "
-                                        f"{_BLAS_RISK}", "warning"))
+                                        f"{_BLAS_RISK}", "warning", kind="blas"))
             elif isinstance(node, Operation) and node.level is Level.POWER and node.left.type.is_floating \
                     and libm and not _reported_by_power_rule(node.right):
                 findings.append(Finding(node.span, RULE, f"{spelling.display(node.span)}: a power with a "
-                                        f"non-integer exponent calls pow: {_LIBM_RISK}", "warning"))
+                                        f"non-integer exponent calls pow: {_LIBM_RISK}", "warning", kind="libm"))
             elif fma_note and not fma_found and _fma_shape(node):
                 fma_found = True
                 findings.append(Finding(node.span, RULE, f"{spelling.display(node.span)}: FMA-prone "
-                                        f"({_fma_shape(node)}): {fma_note}", "note"))
+                                        f"({_fma_shape(node)}): {fma_note}", "note", kind="fma"))
     return [], findings

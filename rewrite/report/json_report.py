@@ -9,13 +9,14 @@ Format (ours, version 1)::
                          "line": int, "column": int, "start": int, "end": int,
                          "before": str, "after": str,
                          "changes": [{"start": int, "end": int, "text": str}]}],
-              "findings": [{"rule": str, "severity": str, "message": str, "line": int, "column": int,
-                            "start": int, "end": int}]}],
+              "findings": [{"rule": str, "severity": "note" | "warning" | "error", "kind": str,
+                            "message": str, "line": int, "column": int, "start": int, "end": int}]}],
    "summary": {"files": int, "edits": int, "bit-for-bit": int, "answer-changing": int,
                "findings": int, "problems": int}}
 
 Offsets (start, end) count characters of the file decoded as UTF-8 (undecodable bytes count one
-each); lines and columns are 1-based.
+each); lines and columns are 1-based. A finding's ``kind`` says what the audit found (``libm``,
+``libm-loop``, ``blas``, ``fma``, ``build``; empty for other rules' notes).
 """
 from __future__ import annotations
 
@@ -36,7 +37,7 @@ def _file(result) -> dict:
             "changes": [{"start": c.start, "end": c.end, "text": c.text} for c in e.changes],
         } for e in result.edits],
         "findings": [{
-            "rule": f.rule, "severity": f.severity, "message": f.message, "line": f.line,
+            "rule": f.rule, "severity": f.severity, "kind": f.kind, "message": f.message, "line": f.line,
             "column": f.column, "start": f.span.start, "end": f.span.end,
         } for f in result.findings],
     }
