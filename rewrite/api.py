@@ -17,7 +17,7 @@ import tempfile
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
-from . import planner
+from . import parallel, planner
 from .config import DEFAULT, Options
 from .edits import Edit, Finding, Problem
 from .ir import Span
@@ -224,6 +224,23 @@ def _libm_in_loops(results: list[Result]) -> bool | None:
     return any(f.kind == "libm-loop" for r in fortran for f in r.findings)
 
 
+def _rewrite_file(item: tuple, batch: tuple) -> Result:
+    """One file of a batch; errors become problems (a bug of ours must not stop the batch)."""
+    path, data, problem = item
+    options, modules = batch
+    if problem is not None:
+        return Result(str(path), "", "", problems=(problem,), data=data)
+    text = decode(data)
+    try:
+        result = rewrite_text(text, language_of(path), options.for_path(str(path)), str(path), modules)
+    except RecursionError:
+        result = Result(str(path), text, text, problems=(Problem(1, "expression nesting too deep"),))
+    except (Exception, SystemExit) as error:  # fparser can exit on odd input: the file is left as it is
+        result = Result(str(path), text, text,
+                        problems=(Problem(1, f"internal error, file left as it is: {error!r}"),))
+    return replace(result, data=data)
+
+
 def rewrite_paths(paths: list[str], options: Options | None = None) -> list[Result]:
     """Results for every file under ``paths``, in order; a bad file never stops the batch."""
     options = options or DEFAULT
@@ -232,19 +249,7 @@ def rewrite_paths(paths: list[str], options: Options | None = None) -> list[Resu
     fortran = [(path, data) for path, data, problem in contents
                if problem is None and data is not None and language_of(path) == "fortran"]
     modules = _batch_modules([decode(data) for _path, data in fortran], [path for path, _data in fortran], options)
-    for path, data, problem in contents:
-        if problem is not None:
-            results.append(Result(str(path), "", "", problems=(problem,), data=data))
-            continue
-        text = decode(data)
-        try:
-            result = rewrite_text(text, language_of(path), options.for_path(str(path)), str(path), modules)
-        except RecursionError:
-            result = Result(str(path), text, text, problems=(Problem(1, "expression nesting too deep"),))
-        except Exception as error:  # a bug of ours must not stop the batch or touch the file
-            result = Result(str(path), text, text,
-                            problems=(Problem(1, f"internal error, file left as it is: {error!r}"),))
-        results.append(replace(result, data=data))
+    results.extend(parallel.ordered_map(_rewrite_file, contents, (options, modules), options.jobs))
     libm_in_loops = _libm_in_loops(results)
     for path in builds:
         data, problem = _read(path)

@@ -24,20 +24,24 @@ _chain_order = click.option("--chain-order", type=click.Choice(["written", "bala
                                  "(both answer-changing).")
 _samples = click.option("--samples", "samples_path", type=click.Path(exists=True, dir_okay=False), default=None,
                         help="JSON file of value samples or ranges per variable, for --chain-order accurate.")
+_jobs = click.option("--jobs", type=click.IntRange(min=0), default=None,
+                     help="Processes for a run over many files (default: one per core; 1: none).")
 _line_length = click.option("--line-length", type=click.IntRange(min=0), default=None,
                             help="Free-form line limit (default 132; 0: no limit).")
 
 
 def _rewrite_options(command):
     """The options every rewriting command takes."""
-    for option in reversed((_paths, _effect, _config, _line_length, _chain_order, _samples)):
+    for option in reversed((_paths, _effect, _config, _line_length, _chain_order, _samples, _jobs)):
         command = option(command)
     return command
 
 
-def _rewrite(paths, effect, config_path, line_length, chain_order, samples_path):
+def _rewrite(paths, effect, config_path, line_length, chain_order, samples_path, jobs):
     """Results for the paths under the merged options, with problems reported; (results, failed)."""
     options = _options(paths, effect, config_path, line_length, chain_order, samples_path)
+    if jobs is not None:
+        options = replace(options, jobs=jobs)
     results = api.rewrite_paths(list(paths), options)
     return results, _report_problems(results)
 

@@ -6,6 +6,7 @@ Keys (TOML, dashes or underscores):
   exclude      glob patterns of paths to skip when walking directories
   module-path  directories searched for the modules that a file USEs (relative to the config
                file); the directories of the given files are always searched
+  jobs         processes for a run over many files (default 0: one per core; 1: no workers)
   audit        which audit checks run (default all): "libm", "blas", "fma", "build"
   guard-functions  further functions whose real results get a signed-zero guard, by the name
                the code calls them (Fortran: "my_min"; Python: "np.nanmin" or "nanmin")
@@ -46,6 +47,7 @@ class Options:
     samples_file: str = ""
     guard_functions: tuple[str, ...] = ()  # further functions whose real results get a +0.0 guard
     audit_checks: tuple[str, ...] = AUDIT_CHECKS  # which findings the audit rule gives
+    jobs: int = 0  # processes for a run over many files; 0: one per core
 
     def for_path(self, path: str) -> "Options":
         """The options for one file: a per-file chain order replaces the run's."""
@@ -94,7 +96,7 @@ def find_config(start: Path) -> Path | None:
 def from_table(table: dict, source: str = "") -> Options:
     values = {key.replace("-", "_"): value for key, value in table.items()}
     known = {"rules", "line_length", "exclude", "module_path", "power_threshold", "fractional_powers",
-             "chain_order", "chain_order_files", "samples", "guard_functions", "audit"}
+             "chain_order", "chain_order_files", "samples", "guard_functions", "audit", "jobs"}
     unknown = sorted(set(values) - known)
     if unknown:
         raise ConfigError(f"{source}: unknown option(s): {', '.join(unknown)}")
@@ -131,6 +133,11 @@ def from_table(table: dict, source: str = "") -> Options:
     if "samples" in values:
         base = Path(source).parent if source else Path.cwd()
         options = with_samples(options, base / str(values["samples"]))
+    if "jobs" in values:
+        jobs = values["jobs"]
+        if not isinstance(jobs, int) or isinstance(jobs, bool) or jobs < 0:
+            raise ConfigError(f"{source}: jobs must be a whole number >= 0 (0: one per core)")
+        options = replace(options, jobs=jobs)
     if "audit" in values:
         checks = values["audit"]
         if not isinstance(checks, list) or any(c not in AUDIT_CHECKS for c in checks):

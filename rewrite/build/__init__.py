@@ -56,6 +56,8 @@ def scan_build_text(name: str, text: str, libm_in_loops: bool | None = None) -> 
         return []
     if "\x00" in text:
         raise BuildFileError(text.count("\n", 0, text.index("\x00")) + 1, "binary content (a NUL character)")
+    if text.startswith("\ufeff"):  # a byte order mark reads as a space: offsets stay the text's
+        text = " " + text[1:]
     return audit(text, _READERS[kind](text), libm_in_loops)
 
 

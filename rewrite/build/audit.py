@@ -117,4 +117,4 @@ def _plain(text: str, unit) -> bool:
     written = text[unit.start:unit.end]
     if len(unit.words) == 1:
         return written == unit.words[0].text
-    return written.split() == [w.text for w in unit.words]
+    return written.replace(";", " ").split() == [w.text for w in unit.words]

@@ -35,6 +35,7 @@ _TARGET_COMMANDS = frozenset("target_compile_options target_link_options".split(
 _PROPERTY_COMMANDS = frozenset(
     "set_source_files_properties set_target_properties set_property set_directory_properties".split())
 _BRACKET_OPEN = re.compile(r"\[(=*)\[")
+_IDENT = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
 
 
 @dataclass(frozen=True)
@@ -45,12 +46,20 @@ class Arg:
     quoted: bool
 
     @property
+    def closed(self) -> bool:
+        return len(self.text) >= 2 and self.text.endswith('"')
+
+    @property
     def value(self) -> str:
-        return self.text[1:-1] if self.quoted else self.text
+        if not self.quoted:
+            return self.text
+        return self.text[1:-1] if self.closed else self.text[1:]
 
     @property
     def inner(self) -> tuple[int, int]:
-        return (self.start + 1, self.end - 1) if self.quoted else (self.start, self.end)
+        if not self.quoted:
+            return self.start, self.end
+        return self.start + 1, self.end - 1 if self.closed else self.end
 
 
 @dataclass(frozen=True)
@@ -82,8 +91,8 @@ def commands(text: str) -> list[Command]:
                 newline = text.find("\n", i)
                 i = n if newline < 0 else newline
             continue
-        if c.isalpha() or c == "_":
-            m = re.compile(r"[A-Za-z_]\w*").match(text, i)
+        m = _IDENT.match(text, i) if (c.isalpha() or c == "_") else None
+        if m:
             j = m.end()
             while j < n and text[j] in " \t":
                 j += 1

@@ -131,3 +131,24 @@ def usage_families(uses: dict[str, list[str]], variables: Variables) -> dict[str
         if not changed:
             break
     return {name: tuple(families) for name, families in reach.items() if families}
+
+
+def wrapper_name(variables: Variables) -> str:
+    """The first compiler wrapper (``mpif90``) a compiler variable names, for messages."""
+    for name, values in variables.values.items():
+        if not is_compiler_var(name):
+            continue
+        for value in values:
+            first = value.strip().split()[0].strip("\"'") if value.strip() else ""
+            if family_of(first) == UNKNOWN:
+                return first.rsplit("/", 1)[-1]
+    return ""
+
+
+def name_wrappers(groups: list, variables: Variables) -> list:
+    """Groups under GCC rules for an unknown compiler say which wrapper hid it."""
+    from dataclasses import replace
+    wrapper = wrapper_name(variables)
+    if not wrapper:
+        return groups
+    return [replace(g, assumed=wrapper) if UNKNOWN in g.families and not g.assumed else g for g in groups]

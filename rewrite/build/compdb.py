@@ -56,7 +56,7 @@ class _Reader:
             chars.append(t[j])
             offsets.append(j)
             j += 1
-        return Decoded("".join(chars), tuple(offsets)), j + 1
+        return Decoded("".join(chars), tuple(offsets), j), j + 1
 
     def value(self, i: int):
         t = self.text
@@ -106,7 +106,7 @@ def _argv(entry: dict) -> list[Word]:
         out = []
         for item in arguments:
             if isinstance(item, Decoded) and item.value:
-                out.append(Word(item.value, item.offsets[0], item.offsets[-1] + 1))
+                out.append(Word(item.value, item.offsets[0], item.stop))
         return out
     command = entry.get("command")
     if isinstance(command, Decoded):
@@ -115,6 +115,13 @@ def _argv(entry: dict) -> list[Word]:
 
 
 def groups(text: str) -> list[OptionGroup]:
+    try:
+        return _groups(text)
+    except RecursionError:
+        raise BuildFileError(1, "nested too deeply to read") from None
+
+
+def _groups(text: str) -> list[OptionGroup]:
     out: list[OptionGroup] = []
     for index, entry in enumerate(parse(text)):
         if not isinstance(entry, dict):

@@ -198,6 +198,10 @@ RULES: tuple[Rule, ...] = (
     Rule("gnu-veclibabi", GL, r"-mveclibabi=\S+", UNSAFE, WARNING,
          "vectorised loops call SVML or ACML vector math functions, whose bits differ from the scalar libm's",
          "remove it", "-mveclibabi=svml", "GCC manual, x86 Options (-mveclibabi)", replacement=()),
+    Rule("gnu-mfpmath-387", GL, r"-mfpmath=(?:387|sse\+387|387\+sse|both|sse,387|387,sse)", UNSAFE, WARNING,
+         "computes with the x87 unit, whose temporary results carry 80-bit precision instead of the type's: "
+         "every expression may round differently", "use -mfpmath=sse (the x86-64 default)", "-mfpmath=387",
+         "GCC manual, x86 Options (-mfpmath)", replacement=("-mfpmath=sse",)),
     Rule("flang-no-honor", (FLANG,), r"-fno-honor-(?:nans|infinities)", UNSAFE, NOTE,
          "assumes no NaN (or no infinity): checks and comparisons with them may be folded away",
          "remove it", "-fno-honor-nans", f"{FLANG_SRC}; {CLANG_FP}", replacement=()),
@@ -362,7 +366,6 @@ RULES: tuple[Rule, ...] = (
 BY_KEY = {rule.key: rule for rule in RULES}
 assert len(BY_KEY) == len(RULES), "rule keys must be unique"
 DEFAULTS = {rule.families[0]: rule for rule in RULES if rule.kind == DEFAULT}
-FINDING_KINDS = (UNSAFE, TARGET, VECTOR, DEFAULT)
 
 # options whose argument may be the next word: option -> pattern the argument must match
 PAIRED = {"-fp-model": r"[\w=-]+", "-h": r"fp\d", "-assume": r"\S+", "-tp": r"\S+", "-O": r"fp\d"}
@@ -453,6 +456,11 @@ def _has_kind(flags: list[str], family: str, kind: str) -> bool:
                for rule in match(unit.text, family))
 
 
+def _contains(flags: list[str], words: tuple[str, ...]) -> bool:
+    n = len(words)
+    return n > 0 and any(tuple(flags[i:i + n]) == tuple(words) for i in range(len(flags) - n + 1))
+
+
 def _one_pass(flags: list[str], family: str, libm_in_loops: bool) -> list[str]:
     out: list[str] = []
     for unit in units(Word(f, i, i + 1) for i, f in enumerate(flags)):
@@ -461,12 +469,16 @@ def _one_pass(flags: list[str], family: str, libm_in_loops: bool) -> list[str]:
         unsafe = [r for r in rules if r.kind == UNSAFE]
         if unsafe:
             rule = max(unsafe, key=lambda r: SEVERITY_RANK[r.severity])
-            out.extend(rule.fixer(words) if rule.fixer else rule.replacement)
+            instead = rule.fixer(words) if rule.fixer else rule.replacement
+            if not _contains(out, instead):  # two -ffp-contract=fast give one -ffp-contract=off
+                out.extend(instead)
             continue
         dropped = [r for r in rules if r.kind == VECTOR and r.replacement is not None]
         if dropped and libm_in_loops:
             out.extend(dropped[0].replacement)
             continue
+        if any(r.kind == SAFE for r in rules) and _contains(out, words):
+            continue  # a safe option stands once
         out.extend(words)
     tags = _tags(out, family)
     if family in (GNU, FLANG) and NO_FMA not in tags:
@@ -499,3 +511,26 @@ def reproducible_flags(flags: list[str], compiler: str = "gfortran", libm_in_loo
             break
         current = following
     return current
+
+
+def table_markdown() -> str:
+    """The table as Markdown (rewrite/build/TABLE.md is this text; a test keeps them equal)."""
+    lines = ["# The build audit's flag table", "",
+             "Generated from `rewrite/build/flags.py` (`table_markdown()`); a test keeps this file equal to it.",
+             "Kinds: unsafe (always a finding), target (FMA-capable; cleared by an option that turns contraction",
+             "off in the same scope), vector (GCC vectorisation with libm calls; depends on `libm_in_loops`),",
+             "safe (never a finding; sets tags), default (a compiler's default, reported at its name).", ""]
+    for family in FAMILIES:
+        lines += [f"## {family}", "", "| rule | kind | severity | example | instead | risk | source |",
+                  "| --- | --- | --- | --- | --- | --- | --- |"]
+        for rule in RULES:
+            if rule.families[0] != family:
+                continue
+            also = f" (also {', '.join(rule.families[1:])})" if len(rule.families) > 1 else ""
+            instead = "keep" if rule.replacement is None else (" ".join(rule.replacement) or "drop")
+            if rule.fixer:
+                instead = "drop noprotect_parens"
+            lines.append(f"| {rule.key}{also} | {rule.kind} | {rule.severity if rule.kind != SAFE else '-'} | "
+                         f"`{rule.example}` | {instead} | {rule.risk or '-'} | {rule.source} |")
+        lines.append("")
+    return "\n".join(lines)

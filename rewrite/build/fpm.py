@@ -39,6 +39,13 @@ def parse(text: str) -> dict:
 
 
 def groups(text: str) -> list[OptionGroup]:
+    try:
+        return _groups(text)
+    except RecursionError:
+        raise BuildFileError(1, "nested too deeply to read") from None
+
+
+def _groups(text: str) -> list[OptionGroup]:
     parse(text)
     out: list[OptionGroup] = []
     for path, decoded in strings(text):

@@ -19,7 +19,7 @@ from __future__ import annotations
 import re
 
 from .commands import (Variables, command_families, condition_families, is_c_flag_var, is_c_var,
-                       is_compiler_var, is_flag_var, referenced, usage_families)
+                       is_compiler_var, is_flag_var, name_wrappers, referenced, usage_families)
 from .compilers import UNKNOWN, family_of
 from .tokens import OptionGroup, Word, logical_lines, make_comment, shell_comment, split_commands, words
 
@@ -143,7 +143,7 @@ def groups(text: str) -> list[OptionGroup]:
                 group = _command(text, a, b, variables, branches.current(), defaults("FFLAGS"))
                 if group:
                     out.append(group)
-    return out
+    return name_wrappers(out, variables)
 
 
 def _assumed(word: Word, family: str | None) -> str:

@@ -16,7 +16,7 @@ from __future__ import annotations
 import re
 
 from .commands import (Variables, command_families, is_c_flag_var, is_c_var, is_compiler_var, is_flag_var,
-                       referenced, usage_families)
+                       name_wrappers, referenced, usage_families)
 from .compilers import LAUNCHERS, UNKNOWN, family_of
 from .tokens import (OptionGroup, Word, logical_lines, shell_comment, shell_word_end, split_commands,
                      words)
@@ -160,7 +160,7 @@ def groups(text: str) -> list[OptionGroup]:
             m = _ARG_ASSIGN.match(text, a, b)
             if m:
                 assignment(m.group(2), m.end(), b)
-    return out
+    return name_wrappers(out, variables)
 
 
 def _assumed(word: Word, family: str | None) -> str:

@@ -30,12 +30,16 @@ class Decoded:
 
     value: str
     offsets: tuple[int, ...]
+    stop: int  # text offset just after the last decoded character's source (escapes included)
+
+    def end_of(self, k: int) -> int:
+        """Text offset just after the source of decoded character ``k``."""
+        return self.offsets[k + 1] if k + 1 < len(self.offsets) else self.stop
 
     def words(self, separators=SEPARATORS) -> list[Word]:
         out = []
         for word in words(self.value, 0, len(self.value), separators):
-            first, last = self.offsets[word.start], self.offsets[word.end - 1]
-            out.append(Word(word.text, first, last + 1))
+            out.append(Word(word.text, self.offsets[word.start], self.end_of(word.end - 1)))
         return out
 
 

@@ -80,7 +80,7 @@ class _Reader:
             chars.append(t[j])
             offsets.append(j)
             j += 1
-        return Decoded("".join(chars), tuple(offsets)), min(j + 1, self.n)
+        return Decoded("".join(chars), tuple(offsets), j), min(j + 1, self.n)
 
     def _escape(self, j: int, chars: list, offsets: list) -> int:
         t = self.text
@@ -128,14 +128,14 @@ class _Reader:
                 for k in range(run - 3):  # up to two quotes before the closing ones are content
                     chars.append(delimiter[0])
                     offsets.append(j + k)
-                return Decoded("".join(chars), tuple(offsets)), j + run
+                return Decoded("".join(chars), tuple(offsets), j + run - 3), j + run
             if delimiter == '"""' and t[j] == "\\":
                 j = self._escape(j, chars, offsets)
                 continue
             chars.append(t[j])
             offsets.append(j)
             j += 1
-        return Decoded("".join(chars), tuple(offsets)), self.n
+        return Decoded("".join(chars), tuple(offsets), self.n), self.n
 
     def value(self, i: int, path: tuple[Key, ...]) -> int:
         t = self.text

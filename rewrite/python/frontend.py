@@ -1,8 +1,8 @@
 """The Python front end: libcst tree -> sites of the language-neutral IR with exact spans and types.
 
-Spans come from libcst's ``ByteSpanPositionProvider`` (UTF-8 byte offsets, turned into
-offsets of the text) and include the node's own parentheses. Calls of functions the rules know
-are named in ``Operand.function`` with a language-neutral name (``array_sum`` for ``np.sum``
+Spans come from libcst's span-recording code generation (the machinery of its
+``ByteSpanPositionProvider``, counting characters) and include the node's own parentheses.
+Calls of functions the rules know are named in ``Operand.function`` with a language-neutral name (``array_sum`` for ``np.sum``
 and ``arr.sum()``, ``minval`` for ``np.min``, ``exp`` for ``math.exp`` and ``np.exp``, ...),
 found through qualified names, so aliases and ``from numpy import sum as npsum`` are one thing.
 Files without a candidate (``prescan``) never reach libcst, and in the others the top-level
@@ -76,13 +76,13 @@ class Analysis:
 
 
 class _Offsets:
-    """UTF-8 byte offsets of the outline libcst parsed -> offsets of the file's text."""
+    """Offsets of the outline libcst parsed (characters, or UTF-8 bytes when the positions came
+    from libcst's ByteSpanPositionProvider) -> offsets of the file's text."""
 
-    def __init__(self, outline: Outline):
+    def __init__(self, outline: Outline, in_bytes: bool):
         self.outline = outline
         text = outline.text
-        data = text.encode("utf-8", "surrogateescape")
-        self.identity = len(data) == len(text)
+        self.identity = not in_bytes or len(text.encode("utf-8", "surrogateescape")) == len(text)
         if not self.identity:
             self.starts = []
             position = 0
@@ -91,9 +91,31 @@ class _Offsets:
                 position += len(char.encode("utf-8", "surrogateescape"))
             self.starts.append(position)
 
-    def __call__(self, byte: int, end: bool = False) -> int:
-        offset = byte if self.identity else bisect.bisect_left(self.starts, byte)
+    def __call__(self, unit: int, end: bool = False) -> int:
+        offset = unit if self.identity else bisect.bisect_left(self.starts, unit)
         return self.outline.original_offset(offset, end) if self.outline.shortened else offset
+
+
+class _Spans:
+    """Stands in for a metadata provider: libcst's span-recording code generation fills
+    ``_computed`` with character spans of every node (one pass, no visitor)."""
+
+    def __init__(self):
+        self._computed: dict = {}
+
+
+def _positions(module: cst.Module) -> tuple[dict, bool]:
+    """Spans of every node, and whether they count bytes. libcst's own ByteSpanPositionProvider
+    runs a full metadata visit first, which costs three times the code generation itself."""
+    try:
+        from libcst.metadata.span_provider import SpanProvidingCodegenState
+        spans = _Spans()
+        module._codegen(SpanProvidingCodegenState(default_indent=module.default_indent,
+                                                  default_newline=module.default_newline,
+                                                  provider=spans, get_length=len))
+        return spans._computed, False
+    except (ImportError, AttributeError, TypeError):  # a libcst without these internals
+        return MetadataWrapper(module, unsafe_skip_copy=True).resolve(ByteSpanPositionProvider), True
 
 
 class _Converter:
@@ -368,10 +390,10 @@ def analyse(text: str, extra_calls: frozenset = frozenset()) -> Analysis:
         result.problems.append(Problem(_file_line(outline, text, error.raw_line), "not processed: libcst cannot "
                                        f"parse this file ({error.message.splitlines()[0]})"))
         return result
-    wrapper = MetadataWrapper(module, unsafe_skip_copy=True)
-    positions = wrapper.resolve(ByteSpanPositionProvider)
-    expected = len(outline.text.encode("utf-8")) + (not outline.text.endswith(("\n", "\r")))  # libcst counts a
-    if positions[module].length != expected:  # missing final line break; anything else is a dropped character
+    positions, in_bytes = _positions(module)
+    size = len(outline.text.encode("utf-8")) if in_bytes else len(outline.text)
+    expected = size + (not outline.text.endswith(("\n", "\r")))  # libcst counts a missing final line break;
+    if positions[module].length != expected:  # anything else is a character it dropped
         line = next((i + 1 for i, (a, b) in enumerate(zip(module.code.splitlines(), outline.text.splitlines()))
                      if a != b), 1)
         line = _file_line(outline, text, line)
@@ -380,7 +402,7 @@ def analyse(text: str, extra_calls: frozenset = frozenset()) -> Analysis:
         return result
     scopes = scopes_of(module)
     typer = Typer(scopes)
-    converter = _Converter(text, positions, typer, _Offsets(outline))
+    converter = _Converter(text, positions, typer, _Offsets(outline, in_bytes))
     lines = [0] + [match.end() for match in re.finditer("\n", text)]
     module_scope = scopes[module]
     sites = _Sites(converter, scopes, lines, _anchor(module, converter, text, module_scope))

@@ -8,7 +8,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from rewrite.api import rewrite_text
-from rewrite.python import prescan, segments
+from libcst.metadata import ByteSpanPositionProvider, MetadataWrapper
+
+from rewrite.python import frontend, prescan, segments
 
 HEADER = "import numpy as np\nimport numpy.typing as npt\nfrom functools import lru_cache\n"
 
@@ -39,10 +41,17 @@ STATEMENTS = [
 ]
 
 
-def _run(text: str, whole: bool) -> tuple:
+def _byte_positions(module):
+    """libcst's public provider: UTF-8 byte spans after a full metadata visit."""
+    return MetadataWrapper(module, unsafe_skip_copy=True).resolve(ByteSpanPositionProvider), True
+
+
+def _run(text: str, whole: bool, public_provider: bool = False) -> tuple:
     with pytest.MonkeyPatch.context() as patch:
         if whole:
             patch.setattr(segments, "outline", lambda source, tree, flagged: segments.whole(source))
+        if public_provider:
+            patch.setattr(frontend, "_positions", _byte_positions)
         result = rewrite_text(text, language="python")
     return (result.text, [(e.rule, e.span, e.line, e.after, e.reason) for e in result.edits],
             [(f.span, f.line, f.rule, f.message) for f in result.findings],
@@ -59,6 +68,15 @@ def test_outline_changes_nothing_the_front_end_finds(statements, newline, final_
     text = text.replace("\n", newline)
     ast.parse(text)  # outside check: the generated module is valid Python (CPython's own parser)
     assert _run(text, False) == _run(text, True)
+
+
+@settings(max_examples=30, deadline=None)
+@given(st.lists(st.sampled_from(STATEMENTS), min_size=1, max_size=6))
+def test_own_span_pass_equals_libcsts_byte_span_provider(statements):
+    # outside check: libcst's public ByteSpanPositionProvider (byte offsets, converted back to
+    # characters) must place every edit and finding where the front end's own span pass does
+    text = HEADER + "\n".join(statements)
+    assert _run(text, False) == _run(text, False, public_provider=True)
 
 
 @settings(max_examples=60, deadline=None)
