@@ -10,6 +10,9 @@ Which functions a language's front end names and guards is the spelling's list; 
 ``guard-functions`` adds functions of the user's own, by the name the code calls them.
 ``sign(a, b)`` is guarded only where ``a`` may be zero (it is -0.0 for a zero ``a`` and a
 negative ``b``); a literal non-zero ``a`` cannot give a zero.
+No guard where it cannot matter: inside a comparison (the zeros compare equal), or as an
+argument of another guarded call (the outer guard decides the sign). Under a unary minus the
+guard goes outside the negation, ``(-min(a, b) + 0.0)``, since -(+0.0) is -0.0 again.
 """
 from __future__ import annotations
 
@@ -20,6 +23,8 @@ from ..ir import Category, Node, Operand, Operation, Site, Unary, walk_with_pare
 
 RULE = "zero"
 SIGN = frozenset({"sign", "dsign"})
+# -0.0 and +0.0 compare equal (IEEE 754-2019 5.11; Fortran 2018 7.4.3.2): no guard inside a comparison
+COMPARISONS = frozenset({"==", "/=", "!=", "<", "<=", ">", ">=", ".eq.", ".ne.", ".lt.", ".le.", ".gt.", ".ge."})
 
 _ORDER_RISK = ("which zero {function} returns for +0.0 and -0.0 depends on the argument order or the data "
                "layout; adding +0.0 makes it +0.0 every time")
@@ -80,6 +85,12 @@ def _may_be_zero(value: Node | None) -> bool:
         return True
 
 
+def _negated(node: Operand, negation: Unary) -> Operand:
+    """The guarded call seen through its negation: the negation's span, the call's type and name."""
+    return Operand(negation.span, node.type, negation.parenthesised, node.key, node.parts, node.form,
+                   node.function, node.function_span, node.keywords)
+
+
 def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Finding]]:
     edits: list[Edit] = []
     findings: list[Finding] = []
@@ -89,6 +100,7 @@ def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Fin
         return edits, findings
     ignore_case = getattr(spelling, "names_ignore_case", False)
     for root in site.roots:
+        parents = {id(node): parent for node, parent in walk_with_parents(root)}
         for node, parent in walk_with_parents(root):
             if not isinstance(node, Operand):
                 continue
@@ -97,12 +109,21 @@ def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Fin
                 continue
             if node.function in SIGN and not _may_be_zero(_first_argument(node)):
                 continue
+            subject = node  # the node whose parent holds a guard, if there is one
+            if isinstance(parent, Unary) and parent.operator == "-":
+                subject, node, parent = parent, _negated(node, parent), parents.get(id(parent))
+            if isinstance(parent, Operation) and parent.operator in COMPARISONS:
+                continue
+            if isinstance(parent, Operand) and (parent.function in guarded_functions
+                                                or _listed(parent, listed, ignore_case)) \
+                    and parent.function not in SIGN:
+                continue  # an argument of min/max/...: the outer guard decides
             shown = spelling.display(node.span)
             if node.type.category is Category.UNKNOWN:
                 findings.append(Finding(node.span, RULE, f"{shown}: the type of its result is unknown: no signed-zero "
                                         "guard added"))
                 continue
-            if node.type.category is not Category.REAL or _guarded(node, parent):
+            if node.type.category is not Category.REAL or _guarded(subject, parent):
                 continue
             zero = spelling.real_literal("0.0", node.type)
             if isinstance(parent, (Operation, Unary)):

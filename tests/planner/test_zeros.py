@@ -90,3 +90,14 @@ def test_the_guard_does_what_the_reason_says(value):
         assert math.copysign(1.0, guarded) == 1.0
     else:
         assert guarded == value
+
+
+def test_guards_where_they_matter_only():
+    result = _rewrite("x = -min(a, b)\nx = 2.0_dp * (-max(a, b))\nif (max(a, b) > 0.0_dp) x = 1.0_dp\n"
+                      "x = max(a, min(b, x))\nx = abs(min(a, b))")
+    # -(+0.0) is -0.0 again (IEEE 754-2019 5.5.1, negate flips the sign bit; section from memory), so the guard goes
+    # outside the negation; in a comparison -0.0 == +0.0 (IEEE 754-2019 5.11) and the guard would
+    # change nothing; the outer max's guard decides the sign of a nested min
+    assert [e.after for e in result.edits] == ["-min(a, b) + 0.0_dp", "((-max(a, b)) + 0.0_dp)",
+                                              "max(a, min(b, x)) + 0.0_dp", "min(a, b) + 0.0_dp"]
+    assert rewrite_text(result.text, options=ZEROS).edits == ()
