@@ -29,8 +29,9 @@ appended once, because both default to ``-ffp-contract=fast`` and FMA is in the 
 instruction set of AArch64 and POWER, so a list without any target option still contracts
 there; at -O2 and above GCC lists get ``-fno-tree-vectorize`` when ``libm_in_loops``; Intel lists
 without an ``-fp-model`` get ``-fp-model consistent`` (the Intel manual: value-safe, no FMA,
-math functions consistent across microarchitectures), and ``-no-fma`` when an AVX2 target stays
-with ``-fp-model precise``; nvfortran lists get ``-Mnofma``; ftn lists without ``-h fpN`` get
+math functions consistent across microarchitectures; the 2023 manuals mark it "ifort only", the
+2024.1 and later ones list it for ifx too), and ``-no-fma`` when an AVX2 target stays with
+``-fp-model precise``; nvfortran lists get ``-Mnofma``; ftn lists without ``-h fpN`` get
 ``-h fp0``. The result is a fixed point: applying it twice gives the same list.
 """
 from __future__ import annotations

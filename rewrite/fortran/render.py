@@ -139,8 +139,9 @@ class FortranSpelling(Spelling):
     libm_severity = "note"  # a scalar call outside loops: libm's own rounding only
     fma_note = ("a target with FMA (-march=native, -mfma, every aarch64) may fuse a product and the addition "
                 "into one rounding, its choice which; fix: build with -ffp-contract=off (docs/audit.md)")
-    vector_libm_note = ("at -O3 gfortran calls a vector math library here, with other bits than the scalar one, "
-                        "so a value can depend on the loop length; fix: -fno-tree-vectorize, or stay below -O3")
+    vector_libm_note = ("where gfortran vectorises (-O3, and -O2 from GCC 12) it calls a vector math library "
+                        "here, with other bits than the scalar one, so a value can depend on the loop length; "
+                        "fix: -fno-tree-vectorize")
     sum_dim_ranks = (2, 3)  # exact_sum of samebits_runtime takes dim for whole arrays of these ranks
     order_note = "unparenthesised, the compiler may evaluate it in any mathematically equivalent order"
     power_note = ("how x**n is computed is left to the processor (gfortran groups x**5 and x**6 differently "

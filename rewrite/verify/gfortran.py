@@ -200,7 +200,7 @@ def build_program(
     subnormal numbers to zero at start-up (GCC links ``crtfastmath.o``).
     """
     exe_c = _require(compiler)
-    wd = Path(workdir) if workdir is not None else Path(tempfile.mkdtemp(prefix="samebits-"))
+    wd = Path(workdir).resolve() if workdir is not None else Path(tempfile.mkdtemp(prefix="samebits-"))
     wd.mkdir(parents=True, exist_ok=True)
     all_flags = [*BASE_FLAGS, *flags]
     objects = []
