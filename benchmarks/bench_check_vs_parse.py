@@ -31,8 +31,9 @@ import statistics
 import subprocess
 import sys
 import tempfile
-import time
 from pathlib import Path
+
+from timing import time_once
 
 TARGET_RATIO = 1.0  # issue 2: checking must not cost more than a bare parse
 
@@ -273,14 +274,7 @@ def _wrap(lines: list[str], width: int = 100) -> list[str]:
 
 # --------------------------------------------------------------------------- timing
 def _time_once(cmd: list[str], ok_codes: tuple[int, ...]) -> tuple[float, subprocess.CompletedProcess]:
-    t0 = time.perf_counter()
-    proc = subprocess.run(cmd, stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
-                          stderr=subprocess.PIPE, text=True, errors="replace")
-    elapsed = time.perf_counter() - t0
-    if proc.returncode not in ok_codes:
-        tail = "\n".join(proc.stderr.strip().splitlines()[-15:])
-        raise RuntimeError(f"{shlex.join(cmd)} exited {proc.returncode}\n{tail}")
-    return elapsed, proc
+    return time_once(cmd, ok_codes, keep_stdout=False)
 
 
 def main(argv: list[str] | None = None) -> int:

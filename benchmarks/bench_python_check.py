@@ -16,12 +16,13 @@ candidates: float chains of three operands or more, powers, ``np.sum``, ``arr.su
 ``np.mean``, ``np.exp``, ``min``/``max`` on floats. Every file is checked with ``ast.parse``
 and every file meant to be clean is checked to hold no candidate, before anything is timed.
 
-Then it runs, each ``--repeat`` times as a subprocess and alternating between the two:
+Then it runs, each ``--repeat`` times as a subprocess and alternating between them:
 
 1. ``CMD check DIR`` (default CMD: ``samebits``); exit status 0 and 1 both count as success
    (1 means "there are proposals"), 2 is an error: its stderr is shown and the benchmark
-   stops;
-2. ``python -c`` that imports libcst, walks DIR and calls ``libcst.parse_module`` on the
+   stops. By default samebits uses every core;
+2. ``CMD check --jobs 1 DIR``, the same in one process, printed beside it for comparison;
+3. ``python -c`` that imports libcst, walks DIR and calls ``libcst.parse_module`` on the
    text of every ``.py`` file; it must exit 0.
 
 Both times therefore include interpreter start-up and imports. It prints the median wall
@@ -34,6 +35,7 @@ from __future__ import annotations
 
 import argparse
 import ast
+import os
 import random
 import re
 import shlex
@@ -42,9 +44,10 @@ import statistics
 import subprocess
 import sys
 import tempfile
-import time
 from pathlib import Path
 from string import Template
+
+from timing import time_once
 
 TARGET_RATIO = 0.5  # issue 5: thanks to the pre-scan, checking costs at most half a bare parse
 MIN_FILE_LINES = 100
@@ -646,14 +649,7 @@ class PythonCorpusGenerator:
 
 # --------------------------------------------------------------------------- timing
 def _time_once(cmd: list[str], ok_codes: tuple[int, ...]) -> tuple[float, subprocess.CompletedProcess]:
-    t0 = time.perf_counter()
-    proc = subprocess.run(cmd, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
-                          stderr=subprocess.PIPE, text=True, errors="replace")
-    elapsed = time.perf_counter() - t0
-    if proc.returncode not in ok_codes:
-        tail = "\n".join(proc.stderr.strip().splitlines()[-40:])
-        raise RuntimeError(f"{shlex.join(cmd)} exited {proc.returncode}\nstderr:\n{tail}")
-    return elapsed, proc
+    return time_once(cmd, ok_codes, keep_stdout=True)
 
 
 def _prepare_dir(keep: str | None) -> tuple[Path, tempfile.TemporaryDirectory | None]:
@@ -696,6 +692,13 @@ def main(argv: list[str] | None = None) -> int:
             tmp.cleanup()
 
 
+def parallel_jobs() -> str:
+    try:
+        return f"{len(os.sched_getaffinity(0))} here"
+    except (AttributeError, OSError):
+        return f"{os.cpu_count()} here"
+
+
 def _run(args: argparse.Namespace, corpus: Path, files: dict[str, tuple[str, bool]]) -> int:
     n_lines = sum(text.count("\n") for text, _kernel in files.values())
     n_kernel = sum(1 for _text, kernel in files.values() if kernel)
@@ -708,13 +711,15 @@ def _run(args: argparse.Namespace, corpus: Path, files: dict[str, tuple[str, boo
 
     parse_cmd = [sys.executable, "-c", PARSE_SNIPPET, str(corpus)]
     check_cmd = None if args.only_parse else shlex.split(args.samebits) + ["check", str(corpus)]
+    single_cmd = None if check_cmd is None else shlex.split(args.samebits) + ["check", "--jobs", "1", str(corpus)]
     status = 0
     if check_cmd is not None and shutil.which(check_cmd[0]) is None:
         print(f"samebits check: skipped (command not found: {check_cmd[0]}; from a checkout, try "
               f"--samebits \"{Path(sys.executable).name} -m rewrite.cli\")", flush=True)
-        check_cmd, status = None, 2
+        check_cmd, single_cmd, status = None, None, 2
 
     check_times: list[float] = []
+    single_times: list[float] = []
     parse_times: list[float] = []
     last_check = None
     try:
@@ -722,6 +727,7 @@ def _run(args: argparse.Namespace, corpus: Path, files: dict[str, tuple[str, boo
             if check_cmd is not None:
                 elapsed, last_check = _time_once(check_cmd, (0, 1))
                 check_times.append(elapsed)
+                single_times.append(_time_once(single_cmd, (0, 1))[0])
             parse_times.append(_time_once(parse_cmd, (0,))[0])
     except RuntimeError as err:
         print(f"run failed: {err}", file=sys.stderr)
@@ -731,8 +737,12 @@ def _run(args: argparse.Namespace, corpus: Path, files: dict[str, tuple[str, boo
     runs = f"median of {args.repeat}; both are subprocesses, so both include interpreter start-up and imports"
     if check_times:
         check = statistics.median(check_times)
+        single = statistics.median(single_times)
         print(f"python check: samebits check {check:.2f} s, bare libcst parse {parse:.2f} s, "
               f"ratio {check / parse:.2f} (target <= {TARGET_RATIO})")
+        print(f"python check, one process: samebits check --jobs 1 {single:.2f} s, "
+              f"ratio {single / parse:.2f} (the parse uses one process; the default uses every core: "
+              f"{parallel_jobs()})")
         print(f"({runs})")
         named = {line.split(":", 1)[0] for line in last_check.stdout.splitlines() if re.match(r"[^:]+:\d+:", line)}
         print(f"samebits check: exit {last_check.returncode}, {len(last_check.stdout.splitlines())} output lines "

@@ -47,6 +47,14 @@ class BuildFileError(ValueError):
         self.message = message
 
 
+def read_guarded(reader, text: str):
+    """``reader(text)``, with a nesting too deep for the parser reported as a BuildFileError."""
+    try:
+        return reader(text)
+    except RecursionError:
+        raise BuildFileError(1, "nested too deeply to read") from None
+
+
 def _note(group: OptionGroup, family: str) -> str:
     if family != UNKNOWN:
         return ""

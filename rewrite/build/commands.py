@@ -152,3 +152,27 @@ def name_wrappers(groups: list, variables: Variables) -> list:
     if not wrapper:
         return groups
     return [replace(g, assumed=wrapper) if UNKNOWN in g.families and not g.assumed else g for g in groups]
+
+
+def default_families(name: str, reach: dict, c_families: list[str], fortran: list[str]) -> tuple[str, ...]:
+    """The compiler families a flag variable is for: those of the commands that use it, else C
+    compilers for a C flag variable, else the file's Fortran compilers (or its C ones)."""
+    if name in reach:
+        return reach[name]
+    if is_c_flag_var(name) and c_families:
+        return tuple(c_families)
+    return tuple(fortran) or tuple(c_families) or (UNKNOWN,)
+
+
+class FamilyLists:
+    """The compiler families a file names, Fortran and C apart, in order of first mention."""
+
+    def __init__(self):
+        self.fortran: list[str] = []
+        self.c: list[str] = []
+
+    def note(self, families, c: bool = False) -> None:
+        target = self.c if c else self.fortran
+        for family in families:
+            if family not in target:
+                target.append(family)

@@ -12,7 +12,7 @@ from __future__ import annotations
 import json
 import re
 
-from .audit import BuildFileError
+from .audit import BuildFileError, read_guarded
 from .compilers import LAUNCHERS, UNKNOWN, family_of
 from .tokens import Decoded, OptionGroup, Word
 
@@ -115,10 +115,7 @@ def _argv(entry: dict) -> list[Word]:
 
 
 def groups(text: str) -> list[OptionGroup]:
-    try:
-        return _groups(text)
-    except RecursionError:
-        raise BuildFileError(1, "nested too deeply to read") from None
+    return read_guarded(_groups, text)
 
 
 def _groups(text: str) -> list[OptionGroup]:

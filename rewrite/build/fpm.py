@@ -17,7 +17,7 @@ from __future__ import annotations
 import re
 import tomllib
 
-from .audit import BuildFileError
+from .audit import BuildFileError, read_guarded
 from .compilers import CRAY, FLANG, GNU, INTEL, NAG, NVIDIA, UNKNOWN
 from .tokens import OptionGroup, Word
 from .toml_text import strings
@@ -39,10 +39,7 @@ def parse(text: str) -> dict:
 
 
 def groups(text: str) -> list[OptionGroup]:
-    try:
-        return _groups(text)
-    except RecursionError:
-        raise BuildFileError(1, "nested too deeply to read") from None
+    return read_guarded(_groups, text)
 
 
 def _groups(text: str) -> list[OptionGroup]:

@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import re
 
-from .commands import (Variables, command_families, condition_families, is_c_flag_var, is_c_var,
+from .commands import (FamilyLists, Variables, command_families, condition_families, default_families, is_c_var,
                        is_compiler_var, is_flag_var, name_wrappers, referenced, usage_families)
 from .compilers import UNKNOWN, family_of
 from .tokens import OptionGroup, Word, logical_lines, make_comment, shell_comment, split_commands, words
@@ -76,14 +76,8 @@ class _Branches:
 def groups(text: str) -> list[OptionGroup]:
     lines = list(_lines(text))
     variables = Variables()
-    fortran: list[str] = []
-    c_families: list[str] = []
-
-    def note(families, c=False):
-        target = c_families if c else fortran
-        for family in families:
-            if family not in target:
-                target.append(family)
+    seen = FamilyLists()
+    fortran, c_families, note = seen.fortran, seen.c, seen.note
 
     for kind, lo, hi, m in lines:
         if kind == "assign":
@@ -114,11 +108,7 @@ def groups(text: str) -> list[OptionGroup]:
     reach = usage_families(uses, variables)
 
     def defaults(name: str) -> tuple[str, ...]:
-        if name in reach:
-            return reach[name]
-        if is_c_flag_var(name) and c_families:
-            return tuple(c_families)
-        return tuple(fortran) or tuple(c_families) or (UNKNOWN,)
+        return default_families(name, reach, c_families, fortran)
 
     out: list[OptionGroup] = []
     branches = _Branches()

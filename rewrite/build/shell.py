@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import re
 
-from .commands import (Variables, command_families, is_c_flag_var, is_c_var, is_compiler_var, is_flag_var,
+from .commands import (FamilyLists, Variables, command_families, default_families, is_c_var, is_compiler_var, is_flag_var,
                        name_wrappers, referenced, usage_families)
 from .compilers import LAUNCHERS, UNKNOWN, family_of
 from .tokens import (OptionGroup, Word, logical_lines, shell_comment, shell_word_end, split_commands,
@@ -87,14 +87,8 @@ def _parse(text: str, lo: int, hi: int):
 def groups(text: str) -> list[OptionGroup]:
     parsed = [(lo, hi, *_parse(text, lo, hi)) for lo, hi in _segments(text)]
     variables = Variables()
-    fortran: list[str] = []
-    c_families: list[str] = []
-
-    def note(families, c=False):
-        target = c_families if c else fortran
-        for family in families:
-            if family not in target:
-                target.append(family)
+    seen = FamilyLists()
+    fortran, c_families, note = seen.fortran, seen.c, seen.note
 
     for _lo, _hi, assignments, command, args in parsed:
         for name, a, b in assignments:
@@ -123,11 +117,7 @@ def groups(text: str) -> list[OptionGroup]:
     reach = usage_families(uses, variables)
 
     def defaults(name: str) -> tuple[str, ...]:
-        if name in reach:
-            return reach[name]
-        if is_c_flag_var(name) and c_families:
-            return tuple(c_families)
-        return tuple(fortran) or tuple(c_families) or (UNKNOWN,)
+        return default_families(name, reach, c_families, fortran)
 
     out: list[OptionGroup] = []
 

@@ -123,8 +123,9 @@ def make_comment(text: str, lo: int, hi: int) -> int:
     return hi
 
 
-def shell_comment(text: str, lo: int, hi: int) -> int:
-    """Offset where a shell comment starts: a ``#`` at the start of a word, outside quotes."""
+def _unquoted(text: str, lo: int, hi: int):
+    """Offsets of the characters of ``text[lo:hi]`` outside shell quotes and not escaped by a
+    backslash (a quote character itself counts as inside)."""
     quote = None
     i = lo
     while i < hi:
@@ -140,33 +141,29 @@ def shell_comment(text: str, lo: int, hi: int) -> int:
             continue
         elif c in "\"'":
             quote = c
-        elif c == "#" and (i == lo or text[i - 1] in " \t\r\n;&|("):
-            return i
+        else:
+            yield i
         i += 1
+
+
+def shell_comment(text: str, lo: int, hi: int) -> int:
+    """Offset where a shell comment starts: a ``#`` at the start of a word, outside quotes."""
+    for i in _unquoted(text, lo, hi):
+        if text[i] == "#" and (i == lo or text[i - 1] in " \t\r\n;&|("):
+            return i
     return hi
 
 
 def split_commands(text: str, lo: int, hi: int) -> list[tuple[int, int]]:
     """Split a shell line at unquoted ``;``, ``&&``, ``||``, ``|`` and ``&``."""
     out = []
-    quote = None
     depth = 0
     start = lo
-    i = lo
-    while i < hi:
+    for i in _unquoted(text, lo, hi):
         c = text[i]
-        if quote:
-            if c == "\\" and quote == '"':
-                i += 2
-                continue
-            if c == quote:
-                quote = None
-        elif c == "\\":
-            i += 2
-            continue
-        elif c in "\"'":
-            quote = c
-        elif c == "{" and i > lo and text[i - 1] == "$":
+        if i < start:
+            continue  # the rest of a ``&&`` or ``||``
+        if c == "{" and i > lo and text[i - 1] == "$":
             depth += 1
         elif c == "}" and depth:
             depth -= 1
@@ -175,35 +172,21 @@ def split_commands(text: str, lo: int, hi: int) -> list[tuple[int, int]]:
             while i + 1 < hi and text[i + 1] in ";&|":
                 i += 1
             start = i + 1
-        i += 1
     out.append((start, hi))
     return [(a, b) for a, b in out if text[a:b].strip()]
 
 
 def shell_word_end(text: str, i: int, hi: int) -> int:
     """End of the shell word that starts at ``i``: quotes, ``${...}`` and ``$(...)`` included."""
-    quote = None
     depth = 0
-    while i < hi:
+    for i in _unquoted(text, i, hi):
         c = text[i]
-        if quote:
-            if c == "\\" and quote == '"':
-                i += 2
-                continue
-            if c == quote:
-                quote = None
-        elif c == "\\":
-            i += 2
-            continue
-        elif c in "\"'":
-            quote = c
-        elif c in "{(" and i > 0 and text[i - 1] == "$":
+        if c in "{(" and i > 0 and text[i - 1] == "$":
             depth += 1
         elif c in "})" and depth:
             depth -= 1
         elif c in " \t\r\n;&|" and not depth:
             return i
-        i += 1
     return hi
 
 
