@@ -138,9 +138,6 @@ def _read(path: Path) -> tuple[bytes | None, Problem | None]:
     return data, None
 
 
-PYTHON_SUFFIXES = (".py", ".pyi")
-
-
 def language_of(path: Path) -> str | None:
     if path.suffix in FREE_FORM_SUFFIXES:
         return "fortran"

@@ -21,10 +21,10 @@ from ..edits import Finding, Problem
 from ..ir import CHARACTER, UNKNOWN, Category, ImportAnchor, Level, Node, Operand, Operation, Site, Span, Unary
 from . import prescan, segments
 from .names import Scope, scopes_of
+from .render import RUNTIME_MODULE
 from .segments import Outline
 from .types import Typer
 
-RUNTIME_MODULE = "rewrite.runtime"
 
 _OPERATORS = {"Add": "+", "Subtract": "-", "Multiply": "*", "Divide": "/", "FloorDivide": "//",
               "Modulo": "%", "Power": "**", "MatrixMultiply": "@", "LeftShift": "<<", "RightShift": ">>",

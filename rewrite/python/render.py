@@ -5,7 +5,7 @@ from __future__ import annotations
 from ..edits import TextChange, apply_changes
 from ..spelling import Spelling
 
-RUNTIME_MODULE = "rewrite.runtime"
+RUNTIME_MODULE = "rewrite.runtime"  # the package rewritten code imports from
 
 
 def _code(line: str) -> str:

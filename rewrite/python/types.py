@@ -14,8 +14,7 @@ import libcst as cst
 
 from ..ir import CHARACTER, INTEGER, LOGICAL, REAL, UNKNOWN, Category, NumType, arithmetic_type
 from .names import Binding, Scope
-
-RUNTIME = "rewrite.runtime"  # the package rewritten code imports from (python/render.py)
+from .render import RUNTIME_MODULE as RUNTIME
 
 COMPLEX = NumType(Category.COMPLEX)
 
