@@ -8,10 +8,7 @@ same either way: tests compare them.
 """
 from __future__ import annotations
 
-import multiprocessing
 import os
-from concurrent.futures import ProcessPoolExecutor
-from concurrent.futures.process import BrokenProcessPool
 
 MIN_ITEMS = 8  # below this, starting workers costs more than it saves
 
@@ -39,7 +36,12 @@ def ordered_map(function, items: list, shared, jobs: int) -> list:
     ``function`` must catch its own errors (a raised exception falls back to this process)."""
     global _context
     jobs = min(jobs_for(jobs), len(items))
-    if jobs <= 1 or len(items) < MIN_ITEMS or "fork" not in multiprocessing.get_all_start_methods():
+    if jobs <= 1 or len(items) < MIN_ITEMS:
+        return [function(item, shared) for item in items]
+    import multiprocessing  # here: a run over one file (an editor's call) does not pay for it
+    from concurrent.futures import ProcessPoolExecutor
+    from concurrent.futures.process import BrokenProcessPool
+    if "fork" not in multiprocessing.get_all_start_methods():
         return [function(item, shared) for item in items]
     _context = (function, shared)
     try:

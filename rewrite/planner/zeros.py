@@ -11,8 +11,9 @@ Which functions a language's front end names and guards is the spelling's list; 
 ``sign(a, b)`` is guarded only where ``a`` may be zero (it is -0.0 for a zero ``a`` and a
 negative ``b``); a literal non-zero ``a`` cannot give a zero.
 No guard where it cannot matter: inside a comparison (the zeros compare equal), or as an
-argument of another guarded call (the outer guard decides the sign). Under a unary minus the
-guard goes outside the negation, ``(-min(a, b) + 0.0)``, since -(+0.0) is -0.0 again.
+argument of another guarded call (the outer guard decides the sign) or of ``abs``. Under a
+unary minus the guard goes outside the negation, ``(-min(a, b) + 0.0)``, since -(+0.0) is
+-0.0 again.
 """
 from __future__ import annotations
 
@@ -23,6 +24,7 @@ from ..ir import Category, Node, Operand, Operation, Site, Unary, walk_with_pare
 
 RULE = "zero"
 SIGN = frozenset({"sign", "dsign"})
+ABSOLUTE = frozenset({"abs", "dabs", "cabs"})
 # -0.0 and +0.0 compare equal (IEEE 754-2019 5.11; Fortran 2018 7.4.3.2): no guard inside a comparison
 COMPARISONS = frozenset({"==", "/=", "!=", "<", "<=", ">", ">=", ".eq.", ".ne.", ".lt.", ".le.", ".gt.", ".ge."})
 
@@ -118,6 +120,8 @@ def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Fin
                                                 or _listed(parent, listed, ignore_case)) \
                     and parent.function not in SIGN:
                 continue  # an argument of min/max/...: the outer guard decides
+            if isinstance(parent, Operand) and parent.function in ABSOLUTE:
+                continue  # abs(-0.0) is +0.0 already
             shown = spelling.display(node.span)
             if node.type.category is Category.UNKNOWN:
                 findings.append(Finding(node.span, RULE, f"{shown}: the type of its result is unknown: no signed-zero "

@@ -15,7 +15,6 @@ import re
 from dataclasses import dataclass, field
 
 import libcst as cst
-from libcst.metadata import ByteSpanPositionProvider, MetadataWrapper
 
 from ..edits import Finding, Problem
 from ..ir import CHARACTER, UNKNOWN, Category, ImportAnchor, Level, Node, Operand, Operation, Site, Span, Unary
@@ -115,6 +114,7 @@ def _positions(module: cst.Module) -> tuple[dict, bool]:
                                                   provider=spans, get_length=len))
         return spans._computed, False
     except (ImportError, AttributeError, TypeError):  # a libcst without these internals
+        from libcst.metadata import ByteSpanPositionProvider, MetadataWrapper
         return MetadataWrapper(module, unsafe_skip_copy=True).resolve(ByteSpanPositionProvider), True
 
 
