@@ -42,8 +42,31 @@ def _chain_operands(node: ast.BinOp):
     yield current
 
 
+_LEAVES = (ast.expr_context, ast.operator, ast.unaryop, ast.cmpop, ast.boolop, ast.Name, ast.Constant, ast.alias)
+_CHILD_FIELDS: dict[type, tuple[str, ...]] = {}
+
+
+def _nodes(tree: ast.AST):
+    """Every node that can hold a candidate: ``ast.walk`` without names, constants, operators
+    and contexts (a third of all nodes), and with each type's fields looked up once."""
+    stack = [tree]
+    while stack:
+        node = stack.pop()
+        yield node
+        kind = type(node)
+        fields = _CHILD_FIELDS.get(kind)
+        if fields is None:
+            fields = _CHILD_FIELDS[kind] = tuple(f for f in kind._fields if f != "ctx")
+        for name in fields:
+            value = getattr(node, name, None)
+            if isinstance(value, list):
+                stack.extend(item for item in value if isinstance(item, ast.AST) and not isinstance(item, _LEAVES))
+            elif isinstance(value, ast.AST) and not isinstance(value, _LEAVES):
+                stack.append(value)
+
+
 def has_candidates(tree: ast.AST, calls: frozenset = CALLS) -> bool:
-    for node in ast.walk(tree):
+    for node in _nodes(tree):
         if isinstance(node, ast.BinOp):
             if isinstance(node.op, (ast.Pow, ast.MatMult)):
                 return True
