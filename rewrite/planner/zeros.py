@@ -87,6 +87,19 @@ def _may_be_zero(value: Node | None) -> bool:
         return True
 
 
+def _needs_parentheses(node: Node, parent: Node | None) -> bool:
+    """``x + 0.0`` needs parentheses unless it stands alone or as an argument of a call (a
+    receiver, an attribute's base, a subscripted value or an operand binds tighter than +)."""
+    if parent is None:
+        return False
+    if isinstance(parent, Operand) and parent.form == "call":
+        for index, part in enumerate(parent.parts):
+            if part is node:
+                keyword = parent.keywords[index] if index < len(parent.keywords) else None
+                return keyword == "*func" or (parent.method and index == 0)
+    return True
+
+
 def _negated(node: Operand, negation: Unary) -> Operand:
     """The guarded call seen through its negation: the negation's span, the call's type and name."""
     return Operand(negation.span, node.type, negation.parenthesised, node.key, node.parts, node.form,
@@ -130,7 +143,7 @@ def plan(site: Site, text: str, options, spelling) -> tuple[list[Edit], list[Fin
             if node.type.category is not Category.REAL or _guarded(subject, parent):
                 continue
             zero = spelling.real_literal("0.0", node.type)
-            if isinstance(parent, (Operation, Unary)):
+            if _needs_parentheses(subject, parent):
                 changes = (TextChange(node.span.start, node.span.start, "(", 1),
                            TextChange(node.span.end, node.span.end, f" + {zero})", -1))
             else:

@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 import libcst as cst
 
 from ..edits import Finding, Problem
-from ..ir import CHARACTER, UNKNOWN, Category, ImportAnchor, Level, Node, Operand, Operation, Site, Span, Unary
+from ..ir import CHARACTER, LOGICAL, UNKNOWN, Category, ImportAnchor, Level, Node, Operand, Operation, Site, Span, Unary
 from . import prescan, segments
 from .names import Scope, scopes_of
 from .render import RUNTIME_MODULE
@@ -28,6 +28,8 @@ from .types import Typer
 _OPERATORS = {"Add": "+", "Subtract": "-", "Multiply": "*", "Divide": "/", "FloorDivide": "//",
               "Modulo": "%", "Power": "**", "MatrixMultiply": "@", "LeftShift": "<<", "RightShift": ">>",
               "BitAnd": "&", "BitOr": "|", "BitXor": "^"}
+_COMPARISONS = {"LessThan": "<", "LessThanEqual": "<=", "GreaterThan": ">", "GreaterThanEqual": ">=",
+                "Equal": "==", "NotEqual": "!="}
 _LEVELS = {"+": Level.ADDITIVE, "-": Level.ADDITIVE, "*": Level.MULTIPLICATIVE, "/": Level.MULTIPLICATIVE,
            "**": Level.POWER}
 
@@ -40,7 +42,9 @@ _BLAS = {"dot": "dot", "matmul": "matmul", "einsum": "einsum", "inner": "inner",
 _FUNCTIONS = {"numpy.sum": "array_sum", "numpy.mean": "array_mean", "numpy.add.reduce": "add_reduce",
               "builtins.sum": "iterable_sum", "numpy.minimum": "min", "numpy.fmin": "min",
               "numpy.maximum": "max", "numpy.fmax": "max", "numpy.min": "minval", "numpy.amin": "minval",
-              "numpy.max": "maxval", "numpy.amax": "maxval", "math.pow": "power", "numpy.float_power": "power"}
+              "numpy.max": "maxval", "numpy.amax": "maxval", "math.pow": "power", "numpy.float_power": "power",
+              "builtins.abs": "abs", "numpy.abs": "abs", "numpy.absolute": "abs", "numpy.fabs": "abs",
+              "math.fabs": "abs"}
 _METHODS = {"sum": "array_sum", "mean": "array_mean", "min": "minval", "max": "maxval", "dot": "dot"}
 
 
@@ -177,6 +181,12 @@ class _Converter:
             return Operand(span, numtype, parenthesised, self.key(node), tuple(parts), "element" if plain else "other")
         if isinstance(node, cst.Call):
             return self._call(node, span, numtype, parenthesised, scope, local)
+        if isinstance(node, cst.Comparison) and len(node.comparisons) == 1 \
+                and type(node.comparisons[0].operator).__name__ in _COMPARISONS:
+            target = node.comparisons[0]  # one comparison: an operation the rules can see (a < b)
+            return Operation(span, LOGICAL, parenthesised, _COMPARISONS[type(target.operator).__name__],
+                             Level.OTHER, self.convert(node.left, scope, local),
+                             self.convert(target.comparator, scope, local), self._raw(target.operator))
         return Operand(span, numtype if node is not None else UNKNOWN, parenthesised, self.key(node),
                        tuple(self._parts(node, scope, local)), "other")
 

@@ -102,3 +102,21 @@ def test_guards_where_they_matter_only():
     assert [e.after for e in result.edits] == ["-min(a, b) + 0.0_dp", "((-max(a, b)) + 0.0_dp)",
                                               "max(a, min(b, x)) + 0.0_dp"]
     assert rewrite_text(result.text, options=ZEROS).edits == ()
+
+
+def test_python_guards_bind_before_attributes_subscripts_and_comparisons():
+    source = ("import numpy as np\nimport numpy.typing as npt\n\n"
+              "def f(x: npt.NDArray[np.float64], y: npt.NDArray[np.float64], a: float, b: float):\n"
+              "    if max(a, b) > 0.0:\n        pass\n"
+              "    return min(a, b).hex(), np.maximum(x, y)[0], max(a, b) ** 2, abs(min(a, b)), float(min(a, b))\n")
+    result = rewrite_text(source, language="python", options=ZEROS)
+    assert "(min(a, b) + 0.0).hex()" in result.text and "(np.maximum(x, y) + 0.0)[0]" in result.text
+    assert "(max(a, b) + 0.0) ** 2" in result.text and "float(min(a, b) + 0.0)" in result.text
+    assert "if max(a, b) > 0.0:" in result.text and "abs(min(a, b))" in result.text
+    # outside check: CPython runs the rewritten function, and every zero comes back as +0.0
+    # (IEEE 754-2019 6.3); the original's min(-0.0, 0.0).hex() keeps the first argument's sign
+    space: dict = {}
+    exec(compile(result.text, "guarded.py", "exec"), space)
+    import numpy as np
+    hexed, element, squared, absolute, plain = space["f"](np.array([-0.0]), np.array([-0.0]), -0.0, 0.0)
+    assert hexed == (0.0).hex() and str(element) == "0.0" and plain == 0.0 and str(plain) == "0.0"
