@@ -9,6 +9,17 @@ ROOT = Path(__file__).resolve().parent.parent
 FIXTURES = ROOT / "fixtures"
 
 
+def only_parentheses_inserted(new: bytes, old: bytes) -> bool:
+    """True when ``new`` is ``old`` with only '(' and ')' bytes inserted (a chain edit)."""
+    position = 0
+    for byte in new:
+        if position < len(old) and byte == old[position]:
+            position += 1
+        elif byte not in b"()":
+            return False
+    return position == len(old)
+
+
 @pytest.fixture
 def fixtures() -> Path:
     return FIXTURES

@@ -94,12 +94,7 @@ def logical_lines(text: str) -> list[tuple[int, int]]:
                 out.append((start, n))
             break
         stop = newline - 1 if newline > 0 and text[newline - 1] == "\r" else newline
-        slashes = 0
-        j = stop - 1
-        while j >= start and text[j] == "\\":
-            slashes += 1
-            j -= 1
-        if slashes % 2 == 1:
+        if _escaped(text, stop, start):
             i = newline + 1  # continued
             continue
         out.append((start, stop))
@@ -107,17 +102,20 @@ def logical_lines(text: str) -> list[tuple[int, int]]:
     return out
 
 
+def _escaped(text: str, i: int, lo: int) -> bool:
+    """True when an odd number of backslashes (not before ``lo``) stands just before ``i``."""
+    j = i - 1
+    while j >= lo and text[j] == "\\":
+        j -= 1
+    return (i - 1 - j) % 2 == 1
+
+
 def make_comment(text: str, lo: int, hi: int) -> int:
     """Offset where a make comment starts in ``text[lo:hi]`` (``hi`` when there is none): the first
     ``#`` not escaped by a backslash (make knows no quotes)."""
     i = text.find("#", lo, hi)
     while i >= 0:
-        slashes = 0
-        j = i - 1
-        while j >= lo and text[j] == "\\":
-            slashes += 1
-            j -= 1
-        if slashes % 2 == 0:
+        if not _escaped(text, i, lo):
             return i
         i = text.find("#", i + 1, hi)
     return hi

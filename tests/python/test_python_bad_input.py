@@ -17,7 +17,7 @@ import pytest
 
 from rewrite.api import WriteError, decode, rewrite_paths, rewrite_text, write_result
 
-from conftest import FIXTURES
+from conftest import FIXTURES, only_parentheses_inserted
 
 BAD = FIXTURES / "python" / "bad"
 GOOD = b"def storage(inflow: float, rain: float, outflow: float) -> float:\n    return inflow + rain - outflow\n"
@@ -45,17 +45,6 @@ def _first_bad_utf8_line(data: bytes) -> int:
     except UnicodeDecodeError as error:
         return data.count(b"\n", 0, error.start) + 1
     raise AssertionError("valid UTF-8")
-
-
-def _only_parentheses_inserted(new: bytes, old: bytes) -> bool:
-    """True when ``new`` is ``old`` with only '(' and ')' bytes inserted (a chain edit)."""
-    position = 0
-    for byte in new:
-        if position < len(old) and byte == old[position]:
-            position += 1
-        elif byte not in b"()":
-            return False
-    return position == len(old)
 
 
 def _stderr_lines(run) -> list[str]:
@@ -110,7 +99,7 @@ def test_apply_on_a_batch_with_bad_python_files(batch):
         assert after[untouched] == before[untouched], untouched
     # the good file of the same batch was rewritten, with parentheses only
     assert after["good_neighbour.py"] != before["good_neighbour.py"]
-    assert _only_parentheses_inserted(after["good_neighbour.py"], before["good_neighbour.py"])
+    assert only_parentheses_inserted(after["good_neighbour.py"], before["good_neighbour.py"])
     compile(after["good_neighbour.py"], "good_neighbour.py", "exec")
     assert "good_neighbour.py: 1 edit(s) applied" in _stderr_lines(run)
     # atomic writes: no temporary file is left behind
@@ -290,7 +279,7 @@ def test_mixed_directory_goes_on_past_one_bad_file_of_each_language(tmp_path):
         assert (tmp_path / name).read_bytes() == files[name], name
     for name in ("good.f90", "good.py", "sub/also_good.py"):
         after = (tmp_path / name).read_bytes()
-        assert after != files[name] and _only_parentheses_inserted(after, files[name]), name
+        assert after != files[name] and only_parentheses_inserted(after, files[name]), name
     # no temporary file anywhere
     assert sorted(str(p.relative_to(tmp_path)) for p in tmp_path.rglob("*") if p.is_file()) == sorted(files)
     # a second run: the bad files are still bad, the good ones have nothing left to propose
@@ -325,7 +314,7 @@ def test_bom_file_is_processed(tmp_path):
     run = _run("apply", "bom.py", cwd=tmp_path)
     assert run.returncode == 0, run.stderr
     after = (tmp_path / "bom.py").read_bytes()
-    assert after.startswith(b"\xef\xbb\xbf") and _only_parentheses_inserted(after, source)
+    assert after.startswith(b"\xef\xbb\xbf") and only_parentheses_inserted(after, source)
 
 
 # once a bug (fixed): a form feed before the first token of a line (allowed: Language Reference
@@ -342,7 +331,7 @@ def test_form_feed_before_a_statement(source, tmp_path):
     after = (tmp_path / "ff.py").read_bytes()
     # whatever the tool decides, it must never write a file that does not compile
     compile(after, "ff.py", "exec")
-    assert run.returncode == 0 and _only_parentheses_inserted(after, source) and after != source
+    assert run.returncode == 0 and only_parentheses_inserted(after, source) and after != source
 
 
 # once a bug (fixed): a file with both CR LF and LF line ends (valid: Language Reference 2.1.2,
@@ -355,7 +344,7 @@ def test_mixed_line_endings_are_not_a_syntax_error(tmp_path):
     run = _run("apply", "mixed.py", cwd=tmp_path)
     assert b"syntax error" not in run.stderr, run.stderr
     after = (tmp_path / "mixed.py").read_bytes()
-    assert run.returncode == 0 and _only_parentheses_inserted(after, source) and after != source
+    assert run.returncode == 0 and only_parentheses_inserted(after, source) and after != source
 
 
 def test_cr_only_file_is_rewritten_with_its_line_ends(tmp_path):
@@ -365,7 +354,7 @@ def test_cr_only_file_is_rewritten_with_its_line_ends(tmp_path):
     (tmp_path / "cr.py").write_bytes(source)
     assert _run("apply", "cr.py", cwd=tmp_path).returncode == 0
     after = (tmp_path / "cr.py").read_bytes()
-    assert after != source and _only_parentheses_inserted(after, source) and b"\n" not in after
+    assert after != source and only_parentheses_inserted(after, source) and b"\n" not in after
 
 
 # once a bug (fixed): line numbers counted LF only: in a file with lone-CR line ends (Language
